@@ -1,0 +1,272 @@
+//! The backward/forward sweep itself.
+
+use crate::network::{Demand, Injection, Network};
+
+/// When a solve stops.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SolveSettings {
+    /// Converged when no complex node voltage changes by more than this between sweeps, pu.
+    pub tol_pu: f64,
+    /// Give up after this many sweeps.
+    pub max_iterations: u32,
+}
+
+impl Default for SolveSettings {
+    /// 1e-9 pu, 100 sweeps.
+    fn default() -> SolveSettings {
+        SolveSettings {
+            tol_pu: 1e-9,
+            max_iterations: 100,
+        }
+    }
+}
+
+/// A converged solve.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Converged {
+    /// Sweeps used (one backward and one forward pass each).
+    pub iterations: u32,
+    /// Largest voltage change in the last sweep, pu.
+    pub mismatch_pu: f64,
+}
+
+/// Why a solve did not converge.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum NotConvergedReason {
+    /// The sweep was still moving after `max_iterations`.
+    IterationLimit,
+    /// Voltages left the band 0.2–3 pu or became non-finite: voltage collapse or divergence.
+    Diverged,
+}
+
+/// A solve that did not converge; the state is left as it was when the solve gave up.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct NotConverged {
+    /// Sweeps done.
+    pub iterations: u32,
+    /// Largest voltage change in the last sweep, pu (may be infinite or NaN when diverged).
+    pub mismatch_pu: f64,
+    /// Why.
+    pub reason: NotConvergedReason,
+}
+
+impl std::fmt::Display for NotConverged {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self.reason {
+            NotConvergedReason::IterationLimit => write!(
+                f,
+                "load flow did not converge in {} sweeps (last voltage change {:.3e} pu)",
+                self.iterations, self.mismatch_pu
+            ),
+            NotConvergedReason::Diverged => write!(
+                f,
+                "load flow diverged after {} sweeps (voltage collapse or runaway)",
+                self.iterations
+            ),
+        }
+    }
+}
+
+impl std::error::Error for NotConverged {}
+
+/// Node voltages and branch currents of one solve, reused from solve to solve.
+///
+/// `j` of node `i` is the current in the branch feeding node `i`, flowing away from the head.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FlowState {
+    pub(crate) v_re: Vec<f64>,
+    pub(crate) v_im: Vec<f64>,
+    pub(crate) j_re: Vec<f64>,
+    pub(crate) j_im: Vec<f64>,
+}
+
+impl FlowState {
+    /// Every node at the head voltage, no current: the flat start.
+    pub fn flat(network: &Network) -> FlowState {
+        let n = network.n_nodes();
+        FlowState {
+            v_re: vec![network.head_v_pu; n],
+            v_im: vec![0.0; n],
+            j_re: vec![0.0; n],
+            j_im: vec![0.0; n],
+        }
+    }
+
+    /// Resets to the flat start without allocating.
+    pub fn set_flat(&mut self, network: &Network) {
+        self.v_re.fill(network.head_v_pu);
+        self.v_im.fill(0.0);
+        self.j_re.fill(0.0);
+        self.j_im.fill(0.0);
+    }
+
+    /// Copies another state of the same network (a warm start) without allocating.
+    ///
+    /// # Panics
+    /// When the two states belong to networks of different sizes.
+    pub fn copy_from(&mut self, other: &FlowState) {
+        self.v_re.copy_from_slice(&other.v_re);
+        self.v_im.copy_from_slice(&other.v_im);
+        self.j_re.copy_from_slice(&other.j_re);
+        self.j_im.copy_from_slice(&other.j_im);
+    }
+
+    /// Number of nodes.
+    pub fn n_nodes(&self) -> usize {
+        self.v_re.len()
+    }
+
+    /// Voltage magnitude at node `i`, pu.
+    pub fn v_mag_pu(&self, i: usize) -> f64 {
+        self.v_re[i].hypot(self.v_im[i])
+    }
+
+    /// Squared voltage magnitude at node `i`, pu².
+    pub fn v_mag2_pu(&self, i: usize) -> f64 {
+        self.v_re[i] * self.v_re[i] + self.v_im[i] * self.v_im[i]
+    }
+
+    /// Current magnitude in the branch feeding node `i`, pu (0 for the head).
+    pub fn current_pu(&self, i: usize) -> f64 {
+        if i == 0 {
+            0.0
+        } else {
+            self.j_re[i].hypot(self.j_im[i])
+        }
+    }
+
+    /// Real parts of the node voltages, pu.
+    pub fn v_re(&self) -> &[f64] {
+        &self.v_re
+    }
+
+    /// Imaginary parts of the node voltages, pu.
+    pub fn v_im(&self) -> &[f64] {
+        &self.v_im
+    }
+
+    /// Real parts of the feeding-branch currents, pu.
+    pub fn j_re(&self) -> &[f64] {
+        &self.j_re
+    }
+
+    /// Imaginary parts of the feeding-branch currents, pu.
+    pub fn j_im(&self) -> &[f64] {
+        &self.j_im
+    }
+}
+
+/// Solves the load flow of `network` under `demand` plus `extra` injections, starting from
+/// whatever `state` holds (flat or a warm start) and leaving the solution in it.
+///
+/// Loads are constant power. Nothing is allocated. Fails with [`NotConverged`] (never panics,
+/// never returns NaN) when the sweep diverges or hits the iteration cap.
+///
+/// # Panics
+/// When `demand` or `state` were built for a network of another size, or an injection names a
+/// node outside the network.
+pub fn solve(
+    network: &Network,
+    demand: &Demand,
+    extra: &[Injection],
+    state: &mut FlowState,
+    settings: &SolveSettings,
+) -> Result<Converged, NotConverged> {
+    let n = network.n_nodes();
+    assert_eq!(demand.p_pu.len(), n, "demand built for another network");
+    assert_eq!(state.v_re.len(), n, "state built for another network");
+    // Re-slicing everything to length n lets the compiler drop bounds checks on `i`.
+    let parent = &network.parent[..n];
+    let r_pu = &network.r_pu[..n];
+    let x_pu = &network.x_pu[..n];
+    let p_pu = &demand.p_pu[..n];
+    let q_pu = &demand.q_pu[..n];
+    let FlowState {
+        v_re,
+        v_im,
+        j_re,
+        j_im,
+    } = state;
+    let (v_re, v_im) = (&mut v_re[..n], &mut v_im[..n]);
+    let (j_re, j_im) = (&mut j_re[..n], &mut j_im[..n]);
+    let tol2 = settings.tol_pu * settings.tol_pu;
+    v_re[0] = network.head_v_pu;
+    v_im[0] = 0.0;
+
+    let mut mismatch2 = f64::INFINITY;
+    for iteration in 1..=settings.max_iterations {
+        // Backward pass: load currents conj(S / V), summed toward the head. Children have higher
+        // indices than their parent, so walking down the indices finishes every subtree sum
+        // before it is passed up.
+        j_re.fill(0.0);
+        j_im.fill(0.0);
+        for injection in extra {
+            let k = injection.bus.index();
+            if k == 0 {
+                continue;
+            }
+            let inv = 1.0 / (v_re[k] * v_re[k] + v_im[k] * v_im[k]);
+            // An injection is a negative demand.
+            let (p, q) = (-injection.p_pu, -injection.q_pu);
+            j_re[k] += (p * v_re[k] + q * v_im[k]) * inv;
+            j_im[k] += (p * v_im[k] - q * v_re[k]) * inv;
+        }
+        for i in (1..n).rev() {
+            let (vr, vi) = (v_re[i], v_im[i]);
+            let inv = 1.0 / (vr * vr + vi * vi);
+            let (p, q) = (p_pu[i], q_pu[i]);
+            let jr = j_re[i] + (p * vr + q * vi) * inv;
+            let ji = j_im[i] + (p * vi - q * vr) * inv;
+            j_re[i] = jr;
+            j_im[i] = ji;
+            let up = parent[i] as usize;
+            j_re[up] += jr;
+            j_im[up] += ji;
+        }
+
+        // Forward pass: V_i = V_parent − Z_i · J_i, parents first.
+        let mut max_change2 = 0.0f64;
+        let mut sum_change2 = 0.0f64; // NaN-propagating twin of the max
+        let mut min_mag2 = f64::INFINITY;
+        let mut max_mag2 = 0.0f64;
+        for i in 1..n {
+            let up = parent[i] as usize;
+            let (r, x) = (r_pu[i], x_pu[i]);
+            let (jr, ji) = (j_re[i], j_im[i]);
+            let nr = v_re[up] - (r * jr - x * ji);
+            let ni = v_im[up] - (r * ji + x * jr);
+            let (dr, di) = (nr - v_re[i], ni - v_im[i]);
+            let change2 = dr * dr + di * di;
+            max_change2 = max_change2.max(change2);
+            sum_change2 += change2;
+            let mag2 = nr * nr + ni * ni;
+            min_mag2 = min_mag2.min(mag2);
+            max_mag2 = max_mag2.max(mag2);
+            v_re[i] = nr;
+            v_im[i] = ni;
+        }
+        mismatch2 = max_change2;
+        if !sum_change2.is_finite() || min_mag2 < 0.04 || max_mag2 > 9.0 {
+            return Err(NotConverged {
+                iterations: iteration,
+                mismatch_pu: if sum_change2.is_finite() {
+                    max_change2.sqrt()
+                } else {
+                    f64::NAN
+                },
+                reason: NotConvergedReason::Diverged,
+            });
+        }
+        if max_change2 <= tol2 {
+            return Ok(Converged {
+                iterations: iteration,
+                mismatch_pu: max_change2.sqrt(),
+            });
+        }
+    }
+    Err(NotConverged {
+        iterations: settings.max_iterations,
+        mismatch_pu: mismatch2.sqrt(),
+        reason: NotConvergedReason::IterationLimit,
+    })
+}
