@@ -1,0 +1,172 @@
+//! Every node of every feeder and scenario, in parallel, in a stable order.
+
+use ndarray::Array2;
+use rayon::prelude::*;
+
+use headroom_model::{BusIdx, Feeder, Study};
+
+use crate::criteria::{Limit, Violation};
+use crate::prepare::{BaseBranch, FeederStudy};
+use crate::search::{CapacityOptions, NodeCapacity};
+
+/// One scenario of one feeder's map.
+#[derive(Debug, Clone)]
+pub struct ScenarioMap {
+    /// Scenario name.
+    pub scenario: String,
+    /// One answer per node, head excluded, in the feeder's depth-first order.
+    pub nodes: Vec<NodeCapacity>,
+    /// Base-case flow of every branch, in branch order.
+    pub base_branches: Vec<BaseBranch>,
+    /// Limits broken without new generation.
+    pub baseline: Vec<Violation>,
+    /// Power from the head into the feeder without new generation, kW and kvar.
+    pub base_head_power: (f64, f64),
+}
+
+/// The map of one feeder.
+#[derive(Debug, Clone)]
+pub struct FeederMap<'f> {
+    /// The feeder.
+    pub feeder: &'f Feeder,
+    /// One entry per scenario, in the study's order.
+    pub scenarios: Vec<ScenarioMap>,
+    /// Hosting capacity, kW, as a grid: one row per scenario, one column per node (head
+    /// excluded, depth-first order).
+    pub hosting_kw: Array2<f64>,
+}
+
+/// Counts of a run, for its closing summary and the benchmarks.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct RunStats {
+    /// Feeders mapped.
+    pub feeders: u64,
+    /// Node answers (nodes × scenarios).
+    pub node_results: u64,
+    /// Load flows solved (base cases included).
+    pub load_flows: u64,
+    /// Sweep iterations of those load flows.
+    pub sweep_iterations: u64,
+    /// Sweep iterations of the base cases alone (flat starts): the cost of one load flow.
+    pub base_sweep_iterations: u64,
+    /// Base cases solved.
+    pub base_cases: u64,
+    /// Answers per binding criterion, in the order of [`Limit::ALL`].
+    pub by_limit: [u64; 7],
+    /// Limits broken without new generation, over all feeders and scenarios.
+    pub baseline_violations: u64,
+}
+
+impl RunStats {
+    /// Adds another run's counts.
+    pub fn add(&mut self, other: &RunStats) {
+        self.feeders += other.feeders;
+        self.node_results += other.node_results;
+        self.load_flows += other.load_flows;
+        self.sweep_iterations += other.sweep_iterations;
+        self.base_sweep_iterations += other.base_sweep_iterations;
+        self.base_cases += other.base_cases;
+        for (a, b) in self.by_limit.iter_mut().zip(other.by_limit) {
+            *a += b;
+        }
+        self.baseline_violations += other.baseline_violations;
+    }
+
+    /// Average cost of one node answer in load-flow equivalents: sweep iterations per answer
+    /// divided by the sweep iterations of one flat-start base case.
+    pub fn load_flow_equivalents_per_answer(&self) -> f64 {
+        if self.node_results == 0 || self.base_cases == 0 {
+            return 0.0;
+        }
+        let per_flow = self.base_sweep_iterations as f64 / self.base_cases as f64;
+        let node_iterations = self.sweep_iterations - self.base_sweep_iterations;
+        node_iterations as f64 / self.node_results as f64 / per_flow
+    }
+
+    /// Answers whose binding criterion is `limit`.
+    pub fn count(&self, limit: Limit) -> u64 {
+        let i = Limit::ALL.iter().position(|&l| l == limit).unwrap_or(0);
+        self.by_limit[i]
+    }
+}
+
+/// Maps every feeder: prepares each (base cases), then solves every (feeder, scenario, node)
+/// in parallel on the current rayon pool. `progress` is called with the number of node answers
+/// finished since its last call (from worker threads). The result is in input order and, within
+/// a feeder, in scenario then node order, whatever the number of threads.
+pub fn map_feeders<'f>(
+    feeders: &'f [Feeder],
+    study: &Study,
+    options: &CapacityOptions,
+    progress: &(dyn Fn(u64) + Sync),
+) -> (Vec<FeederMap<'f>>, RunStats) {
+    let prepared: Vec<FeederStudy<'f>> = feeders
+        .par_iter()
+        .map(|feeder| FeederStudy::prepare(feeder, study))
+        .collect();
+    let n_scenarios = study.scenarios.len();
+    let tasks: Vec<(usize, usize, BusIdx)> = prepared
+        .iter()
+        .enumerate()
+        .flat_map(|(f, p)| {
+            (0..n_scenarios).flat_map(move |s| {
+                (1..p.feeder.n_nodes()).map(move |i| (f, s, BusIdx::new(i as u32)))
+            })
+        })
+        .collect();
+    let answers: Vec<NodeCapacity> = tasks
+        .par_iter()
+        .map(|&(f, s, bus)| {
+            let answer = prepared[f].node_capacity(s, bus, options);
+            progress(1);
+            answer
+        })
+        .collect();
+
+    let mut stats = RunStats::default();
+    let mut answers = answers.into_iter();
+    let mut maps = Vec::with_capacity(prepared.len());
+    for p in &prepared {
+        let n_answers = p.feeder.n_nodes() - 1;
+        let mut hosting_kw = Array2::zeros((n_scenarios, n_answers));
+        let mut scenarios = Vec::with_capacity(n_scenarios);
+        for (s, case) in p.cases.iter().enumerate() {
+            let nodes: Vec<NodeCapacity> = answers.by_ref().take(n_answers).collect();
+            for (j, answer) in nodes.iter().enumerate() {
+                hosting_kw[[s, j]] = answer.hosting_kw;
+                stats.load_flows += u64::from(answer.load_flows);
+                stats.sweep_iterations += u64::from(answer.sweep_iterations);
+                let l = Limit::ALL
+                    .iter()
+                    .position(|&l| l == answer.limit)
+                    .unwrap_or(0);
+                stats.by_limit[l] += 1;
+            }
+            let base_iterations = match &case.base_result {
+                Ok(c) => c.iterations,
+                Err(e) => e.iterations,
+            };
+            stats.load_flows += 1;
+            stats.base_cases += 1;
+            stats.sweep_iterations += u64::from(base_iterations);
+            stats.base_sweep_iterations += u64::from(base_iterations);
+            stats.node_results += nodes.len() as u64;
+            let baseline = p.baseline_violations(s);
+            stats.baseline_violations += baseline.len() as u64;
+            scenarios.push(ScenarioMap {
+                scenario: case.scenario.name.clone(),
+                nodes,
+                base_branches: p.base_branches(s),
+                baseline,
+                base_head_power: p.base_head_power(s),
+            });
+        }
+        stats.feeders += 1;
+        maps.push(FeederMap {
+            feeder: p.feeder,
+            scenarios,
+            hosting_kw,
+        });
+    }
+    (maps, stats)
+}
