@@ -145,8 +145,8 @@ pub(crate) fn head_p_pu(network: &Network, state: &FlowState) -> f64 {
     let (v0r, v0i) = (state.v_re()[0], state.v_im()[0]);
     let parents = network.parents();
     let (mut jr, mut ji) = (0.0, 0.0);
-    for i in 1..parents.len() {
-        if parents[i] == 0 {
+    for (i, &up) in parents.iter().enumerate().skip(1) {
+        if up == 0 {
             jr += state.j_re()[i];
             ji += state.j_im()[i];
         }
@@ -232,10 +232,10 @@ impl Thresholds {
         for i in 0..n {
             let v2 = v_re[i] * v_re[i] + v_im[i] * v_im[i];
             let i2 = j_re[i] * j_re[i] + j_im[i] * j_im[i];
-            mask |= u8::from(v2 > ov2[i]) * OVER
-                | u8::from(v2 < uv2[i]) * UNDER
-                | u8::from(v2 > ch_hi2[i] || v2 < ch_lo2[i]) * CHANGE
-                | u8::from(i > 0 && i2 > th2[i]) * THERMAL;
+            mask |= (u8::from(v2 > ov2[i]) * OVER)
+                | (u8::from(v2 < uv2[i]) * UNDER)
+                | (u8::from(v2 > ch_hi2[i] || v2 < ch_lo2[i]) * CHANGE)
+                | (u8::from(i > 0 && i2 > th2[i]) * THERMAL);
         }
         if self.head_p_min_pu > f64::NEG_INFINITY && head_p_pu(network, state) < self.head_p_min_pu
         {
