@@ -105,7 +105,10 @@ impl ModelErrors {
     /// Wraps a list of diagnostics, keeping only the errors.
     pub fn new(diagnostics: Vec<Diagnostic>) -> ModelErrors {
         ModelErrors {
-            errors: diagnostics.into_iter().filter(Diagnostic::is_error).collect(),
+            errors: diagnostics
+                .into_iter()
+                .filter(Diagnostic::is_error)
+                .collect(),
         }
     }
 

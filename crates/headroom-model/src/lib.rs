@@ -18,15 +18,23 @@
 //! This crate never solves a load flow, never writes files and never prints.
 #![deny(missing_docs)]
 
+mod conductors;
+mod csv_table;
 mod diagnostic;
 mod feeder;
 mod read;
+mod source;
 mod study;
+mod study_file;
+mod toml_doc;
 mod tree;
 
-pub use diagnostic::{Diagnostic, ModelErrors, Severity};
+pub use diagnostic::{Diagnostic, MAX_REPORTED, ModelErrors, Severity};
 pub use feeder::{
     Branch, BranchIdx, BranchRecord, BusIdx, Feeder, FeederHeader, Node, NodeRecord, OpenBranch,
 };
-pub use read::{discover_feeders, load_feeder, load_feeders};
+pub use read::{
+    BRANCHES_FILE, CONDUCTORS_FILE, FEEDER_FILE, NODES_FILE, discover_feeders, load_feeder,
+    load_feeders,
+};
 pub use study::{GenerationSettings, Limits, ReverseFlow, Scenario, SearchSettings, Study};

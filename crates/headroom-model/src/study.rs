@@ -222,7 +222,10 @@ impl Study {
             "must be in (0, 1]",
         );
         if self.scenarios.is_empty() {
-            errors.push(Diagnostic::error(file, "at least one [[scenario]] is needed").at_column("scenario"));
+            errors.push(
+                Diagnostic::error(file, "at least one [[scenario]] is needed")
+                    .at_column("scenario"),
+            );
         }
         for (i, sc) in self.scenarios.iter().enumerate() {
             for (key, v) in [("load_scale", sc.load_scale), ("gen_scale", sc.gen_scale)] {
@@ -240,7 +243,10 @@ impl Study {
                         .at_column(format!("scenario[{}].name", i + 1)),
                 );
             }
-            if self.scenarios[..i].iter().any(|other| other.name == sc.name) {
+            if self.scenarios[..i]
+                .iter()
+                .any(|other| other.name == sc.name)
+            {
                 errors.push(
                     Diagnostic::error(file, "duplicate scenario name")
                         .at_column(format!("scenario[{}].name", i + 1))

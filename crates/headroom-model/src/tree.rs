@@ -42,6 +42,10 @@ impl Feeder {
         // Node ids.
         let mut record_of: HashMap<&str, usize> = HashMap::with_capacity(nodes.len());
         for (i, node) in nodes.iter().enumerate() {
+            if node.id.is_empty() {
+                // Reported by check_node_values.
+                continue;
+            }
             if let Some(&first) = record_of.get(node.id.as_str()) {
                 errors.push(
                     Diagnostic::error(&nodes_file, "duplicate node id")
@@ -68,7 +72,9 @@ impl Feeder {
         let mut adjacency: Vec<Vec<(usize, usize)>> = vec![Vec::new(); nodes.len()];
         let mut open_branches = Vec::new();
         for (b, branch) in branches.iter().enumerate() {
-            if let Some(&first) = branch_ids.get(branch.id.as_str()) {
+            if branch.id.is_empty() {
+                // Reported by check_branch_values.
+            } else if let Some(&first) = branch_ids.get(branch.id.as_str()) {
                 errors.push(
                     Diagnostic::error(&branches_file, "duplicate branch id")
                         .at_line(branch.line)
@@ -95,6 +101,11 @@ impl Feeder {
             {
                 match record_of.get(end.as_str()) {
                     Some(&i) => ends[slot] = Some(i),
+                    None if end.is_empty() => errors.push(
+                        Diagnostic::error(&branches_file, "node id is empty")
+                            .at_line(branch.line)
+                            .at_column(column),
+                    ),
                     None => errors.push(
                         Diagnostic::error(&branches_file, "unknown node")
                             .at_line(branch.line)
@@ -103,7 +114,7 @@ impl Feeder {
                     ),
                 }
             }
-            if branch.from == branch.to {
+            if branch.from == branch.to && !branch.from.is_empty() {
                 errors.push(
                     Diagnostic::error(&branches_file, "branch connects a node to itself")
                         .at_line(branch.line)
@@ -347,10 +358,13 @@ fn check_branch_values(branches: &[BranchRecord], file: &Path, errors: &mut Vec<
         }
         if branch.r_ohm == 0.0 && branch.x_ohm == 0.0 {
             errors.push(
-                Diagnostic::error(file, "r_ohm and x_ohm are both zero (a branch needs an impedance)")
-                    .at_line(branch.line)
-                    .at_column("r_ohm")
-                    .with_value("0"),
+                Diagnostic::error(
+                    file,
+                    "r_ohm and x_ohm are both zero (a branch needs an impedance)",
+                )
+                .at_line(branch.line)
+                .at_column("r_ohm")
+                .with_value("0"),
             );
         }
         if !(branch.rating_a.is_finite() && branch.rating_a > 0.0) {
