@@ -243,11 +243,19 @@ impl Table {
             }
         }
         let mut incomplete = false;
+        // One column whose name holds another separator: the file is not comma-separated.
+        let separator_hint = match header.as_slice() {
+            [only] if only.contains(';') => " (the cells seem to be separated by ';': use commas)",
+            [only] if only.contains('\t') => {
+                " (the cells seem to be separated by tabs: use commas)"
+            }
+            _ => "",
+        };
         for &required in spec.required {
             if !column_of.contains_key(required) {
                 incomplete = true;
                 errors.push(
-                    Diagnostic::error(file, "missing required column")
+                    Diagnostic::error(file, format!("missing required column{separator_hint}"))
                         .at_line(header_line)
                         .at_column(required),
                 );

@@ -324,6 +324,16 @@ fn missing_required_columns() {
             "feeders/f1/branches.csv: line 1: column to: missing required column",
         ]
     );
+
+    fixture.write("feeders/f1/nodes.csv", NODES.replace(',', ";"));
+    fixture.write("feeders/f1/branches.csv", BRANCHES);
+    assert_eq!(
+        fixture.errors(),
+        [
+            "feeders/f1/nodes.csv: line 1: column id: missing required column (the cells seem to be \
+          separated by ';': use commas)"
+        ]
+    );
 }
 
 #[test]
