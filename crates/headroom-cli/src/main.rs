@@ -1,1 +1,68 @@
-fn main() {}
+//! The `headroom` command: parse the arguments, call the libraries, print, and map failures to
+//! exit codes (0 success, 1 invalid model or settings, 2 bad usage, 3 could not write output).
+
+mod args;
+mod cmd_flow;
+mod cmd_map;
+mod cmd_synth;
+mod cmd_validate;
+mod output;
+mod progress;
+mod tables;
+
+use std::process::ExitCode;
+
+use clap::Parser;
+
+use args::{Cli, Command};
+
+/// Printed with every result: the numbers feed decisions about energised equipment.
+pub const CAUTION: &str = "Caution: planning estimates only. Confirm under local codes and by \
+licensed engineers before any connection decision.";
+
+/// A failure with its exit code.
+#[derive(Debug)]
+pub enum Failure {
+    /// The model or settings are invalid (exit 1); the message names file, line and value.
+    Invalid(String),
+    /// Bad command-line usage not caught by the parser (exit 2).
+    Usage(String),
+    /// Output could not be written (exit 3).
+    Output(String),
+}
+
+impl From<headroom_model::ModelErrors> for Failure {
+    fn from(errors: headroom_model::ModelErrors) -> Failure {
+        let n = errors.errors.len();
+        Failure::Invalid(format!(
+            "{errors}\n{n} error{} found; nothing was written.",
+            if n == 1 { "" } else { "s" }
+        ))
+    }
+}
+
+#[allow(clippy::print_stderr)]
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    let result = match &cli.command {
+        Command::Validate(a) => cmd_validate::run(a),
+        Command::Flow(a) => cmd_flow::run(a),
+        Command::Map(a) => cmd_map::run(a),
+        Command::Synth(a) => cmd_synth::run(a),
+    };
+    match result {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(Failure::Invalid(message)) => {
+            eprintln!("{message}");
+            ExitCode::from(1)
+        }
+        Err(Failure::Usage(message)) => {
+            eprintln!("error: {message}");
+            ExitCode::from(2)
+        }
+        Err(Failure::Output(message)) => {
+            eprintln!("error: {message}");
+            ExitCode::from(3)
+        }
+    }
+}

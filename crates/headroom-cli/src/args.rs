@@ -1,0 +1,114 @@
+//! Command-line arguments (clap).
+
+use std::path::PathBuf;
+
+use clap::{Args, Parser, Subcommand, ValueEnum};
+
+/// How much new generation can each node of a radial feeder take?
+///
+/// headroom reads feeder models (feeder.toml, nodes.csv, branches.csv, conductors.csv), runs
+/// exact radial load flows and finds, node by node and scenario by scenario, the largest new
+/// generation before a limit breaks: overvoltage, undervoltage, thermal overload, voltage change
+/// when the plant trips, reverse power at the substation. Results are GeoParquet maps.
+///
+/// Results are planning estimates: confirm them under local codes and by licensed engineers.
+#[derive(Debug, Parser)]
+#[command(name = "headroom", version, about, long_about, max_term_width = 100)]
+pub struct Cli {
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Check feeder files and study settings; report every problem with file, line and value.
+    Validate(ValidateArgs),
+    /// Solve one load flow per scenario and write node voltages and branch flows.
+    Flow(FlowArgs),
+    /// Hosting capacity of every node, every scenario: the main job. Writes GeoParquet maps.
+    Map(MapArgs),
+    /// Write a seeded synthetic feeder (or a region of them) in the feeder format.
+    Synth(SynthArgs),
+}
+
+#[derive(Debug, Args)]
+pub struct ValidateArgs {
+    /// A feeder folder, or a folder of feeder folders.
+    pub path: PathBuf,
+    /// Study settings to check as well (study.toml).
+    #[arg(long, value_name = "FILE")]
+    pub study: Option<PathBuf>,
+}
+
+#[derive(Debug, Args)]
+pub struct FlowArgs {
+    /// A feeder folder, or a folder of feeder folders.
+    pub feeder: PathBuf,
+    /// Folder to write flow_nodes.parquet and flow_branches.parquet into (created if missing).
+    #[arg(long, value_name = "DIR")]
+    pub out: PathBuf,
+    /// Study settings (study.toml); default: the format's defaults (scenarios min-load and
+    /// peak-load).
+    #[arg(long, value_name = "FILE")]
+    pub study: Option<PathBuf>,
+    /// Solve only this scenario of the study.
+    #[arg(long, value_name = "NAME")]
+    pub scenario: Option<String>,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum SearchArg {
+    /// Predict each limit from the network's impedances, then certify it with full load flows.
+    Fast,
+    /// Step by step_kw from 0, then refine: the slow reference of the definition.
+    Stepped,
+}
+
+#[derive(Debug, Args)]
+pub struct MapArgs {
+    /// A feeder folder, or a folder of feeder folders.
+    pub path: PathBuf,
+    /// Folder to write nodes.parquet, branches.parquet, feeders.parquet, baseline.parquet and
+    /// run.json into (created if missing).
+    #[arg(long, value_name = "DIR")]
+    pub out: PathBuf,
+    /// Study settings (study.toml); default: the format's defaults.
+    #[arg(long, value_name = "FILE")]
+    pub study: Option<PathBuf>,
+    /// Worker threads (default: one per core). Results are identical for any number.
+    #[arg(long, value_name = "N", value_parser = clap::value_parser!(u32).range(1..=1024))]
+    pub threads: Option<u32>,
+    /// Search method; both give the same numbers.
+    #[arg(long, value_enum, default_value_t = SearchArg::Fast)]
+    pub search: SearchArg,
+    /// Skip the capacity under each criterion alone (hosting_kw_voltage, _thermal, _change,
+    /// _reverse are then empty): about half the load flows.
+    #[arg(long)]
+    pub no_criteria_detail: bool,
+    /// PROJJSON file describing the CRS of the coordinates, for a `crs` that is neither
+    /// EPSG:4326 nor a WGS 84 UTM zone (EPSG:326NN / EPSG:327NN).
+    #[arg(long, value_name = "FILE")]
+    pub crs_projjson: Option<PathBuf>,
+    /// No progress bar.
+    #[arg(long, short)]
+    pub quiet: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct SynthArgs {
+    /// Nodes per feeder, the head included.
+    #[arg(long, value_name = "N", value_parser = clap::value_parser!(u64).range(2..=2_000_000))]
+    pub nodes: u64,
+    /// Seed: the same seed always gives the same feeder.
+    #[arg(long, value_name = "S", default_value_t = 1)]
+    pub seed: u64,
+    /// Write a region of this many feeders (one folder each, shared conductors.csv).
+    #[arg(long, value_name = "F", value_parser = clap::value_parser!(u64).range(1..=100_000))]
+    pub feeders: Option<u64>,
+    /// Line-to-line nominal voltage, kV (default: chosen from the size).
+    #[arg(long, value_name = "KV")]
+    pub kv: Option<f64>,
+    /// Folder to write into: the feeder folder itself, or the region folder with --feeders.
+    #[arg(long, value_name = "DIR")]
+    pub out: PathBuf,
+}
