@@ -13,7 +13,12 @@
 //! a large feeder has many small loads rather than an absurd total. Conductors are sized from
 //! the peak current downstream of each section with a 25 % margin, never lighter than the
 //! section's place calls for (heavy on the first part of the trunk, medium on the rest of it and
-//! at the start of laterals).
+//! at the start of laterals). With these choices a test-only sweep finds, for 11 kV feeders of 30
+//! to 5,000 nodes, base-case voltages of about 0.95–1.0 pu at peak and 0.99–1.0 pu at min-load
+//! (loads × 0.3 with the existing solar), and no branch above its rating.
+//!
+//! Open points (closed = false) run from line ends to the nearest node of another line,
+//! 46 m to 1 km away: one per 400 nodes, at least one from four nodes up, at most sixteen.
 //!
 //! Only integer arithmetic and exactly rounded floating-point operations are used, so the output
 //! is the same on every platform.

@@ -66,7 +66,7 @@ pub fn generate_region(
 /// CRS and head position as the region's corner). Each feeder gets its own seed derived from
 /// `template.seed`, a substation (four feeders each, on a 15 km grid), a region name, a display
 /// name and a trunk heading; the id is the substation's name in lower case with the feeder's
-/// number, unique within the region. Deterministic, like [`generate`].
+/// number, unique within the region. Returned sorted by id. Deterministic, like [`generate`].
 pub fn generate_region_with(
     n_feeders: usize,
     template: &SynthSettings,
@@ -120,6 +120,8 @@ pub fn generate_region_with(
             feeders.push((id, generate(&settings)));
         }
     }
+    // In id order, the order in which a folder of feeders is listed.
+    feeders.sort_by(|a, b| a.0.cmp(&b.0));
     feeders
 }
 
