@@ -97,6 +97,10 @@ struct Evaluator<'s, 'f> {
     resolution_kw: f64,
     max_steps: u64,
     work: FlowState,
+    /// Series impedance shared by each node's path to the head and the plant's path, pu: the
+    /// voltage change at node i from a current I injected at the plant is ≈ Z_common(i)·I.
+    common_r_pu: Vec<f64>,
+    common_x_pu: Vec<f64>,
     outcomes: HashMap<u64, Outcome>,
     load_flows: u32,
     sweep_iterations: u32,
@@ -106,6 +110,21 @@ impl<'s, 'f> Evaluator<'s, 'f> {
     fn new(study: &'s FeederStudy<'f>, s: usize, bus: BusIdx) -> Evaluator<'s, 'f> {
         let case = &study.cases[s];
         let search = &study.study.search;
+        // Nodes on the plant's path take their own path impedance; every other node takes that
+        // of the point where its path leaves the plant's (its parent's value: parents come first).
+        let n = study.feeder.n_nodes();
+        let mut on_path = vec![false; n];
+        for node in study.feeder.path_to_head(bus) {
+            on_path[node.index()] = true;
+        }
+        let parents = study.network.parents();
+        let mut common_r_pu = vec![0.0; n];
+        let mut common_x_pu = vec![0.0; n];
+        for i in 1..n {
+            let from = if on_path[i] { i } else { parents[i] as usize };
+            common_r_pu[i] = study.path_r_pu[from];
+            common_x_pu[i] = study.path_x_pu[from];
+        }
         Evaluator {
             study,
             case,
@@ -116,6 +135,8 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             // 20000 / 0.1 landing a hair below an integer).
             max_steps: (search.max_kw / search.resolution_kw + 1e-9).floor() as u64,
             work: case.base.clone(),
+            common_r_pu,
+            common_x_pu,
             outcomes: HashMap::new(),
             load_flows: 0,
             sweep_iterations: 0,
@@ -135,7 +156,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             p_pu,
             q_pu: p_pu * self.q_per_p,
         };
-        self.work.copy_from(&self.case.base);
+        self.warm_start(injection.p_pu, injection.q_pu);
         let result = solve(
             network,
             &self.case.demand,
@@ -156,6 +177,25 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         };
         self.outcomes.insert(p_kw.to_bits(), outcome);
         outcome
+    }
+
+    /// Starts from the base case plus the linear voltage change of the injection (superposition
+    /// of the injected current through the shared path impedance). Depends only on the
+    /// injection, so a given injection always solves to the same numbers.
+    fn warm_start(&mut self, p_pu: f64, q_pu: f64) {
+        let base = &self.case.base;
+        let k = self.bus.index();
+        let (vr, vi) = (base.v_re()[k], base.v_im()[k]);
+        let inv = 1.0 / (vr * vr + vi * vi);
+        // Injected current conj(S / V) at the plant, S = p + jq.
+        let (ir, ii) = ((p_pu * vr + q_pu * vi) * inv, (p_pu * vi - q_pu * vr) * inv);
+        self.work.set_voltages(|i| {
+            let (r, x) = (self.common_r_pu[i], self.common_x_pu[i]);
+            (
+                base.v_re()[i] + r * ir - x * ii,
+                base.v_im()[i] + r * ii + x * ir,
+            )
+        });
     }
 
     /// The outcome at `p_kw`, solved once.
@@ -187,15 +227,21 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         let (r, x) = (self.study.path_r_pu[k], self.study.path_x_pu[k]);
         let v0 = base.v_pu[k];
         let rise_per_pu = (r + x * self.q_per_p) / v0;
+        let qpp = self.q_per_p;
+        // The node's Thévenin equivalent (base voltage behind the path impedance) with the
+        // plant at its end is the two-bus system: solved exactly for the target voltage.
         let mut best = f64::INFINITY;
         if subset & OVER != 0 && rise_per_pu > 0.0 {
-            best = best.min(case.subtree_ov_headroom[k] / rise_per_pu);
+            let target = v0 + case.subtree_ov_headroom[k];
+            best = best.min(two_bus_p_for_voltage(v0, target, r, x, qpp));
         }
         if subset & UNDER != 0 && rise_per_pu < 0.0 {
-            best = best.min(case.subtree_uv_headroom[k] / -rise_per_pu);
+            let target = v0 - case.subtree_uv_headroom[k];
+            best = best.min(two_bus_p_for_voltage(v0, target, r, x, qpp));
         }
-        if subset & CHANGE != 0 && rise_per_pu != 0.0 {
-            best = best.min(thresholds.change_pu / rise_per_pu.abs());
+        if subset & CHANGE != 0 && thresholds.change_pu.is_finite() && rise_per_pu != 0.0 {
+            let target = v0 + thresholds.change_pu.copysign(rise_per_pu);
+            best = best.min(two_bus_p_for_voltage(v0, target, r, x, qpp));
         }
         if subset & THERMAL != 0 {
             // Current injected per pu of P: conj(S / V) with S = 1 + j·q_per_p.
@@ -337,6 +383,25 @@ impl<'s, 'f> Evaluator<'s, 'f> {
 
 /// Predicted evaluations allowed once the answer is bracketed, before bisecting.
 const MAX_PREDICTED_IN_BRACKET: u32 = 4;
+
+/// The smallest positive injection P (pu, with Q = P·`q_per_p`) that brings the far end of a
+/// line r + jx from a stiff source at `vs` to the voltage `vr`: the two-bus quartic
+/// V_r⁴ − (V_s² + 2(rP + xQ))·V_r² + (P² + Q²)(r² + x²) = 0 solved for P. Infinite when no
+/// injection reaches `vr` (the nose of the curve lies below it).
+fn two_bus_p_for_voltage(vs: f64, vr: f64, r: f64, x: f64, q_per_p: f64) -> f64 {
+    let a = (r * r + x * x) * (1.0 + q_per_p * q_per_p);
+    let b = -2.0 * (r + x * q_per_p) * vr * vr;
+    let c = vr.powi(4) - vs * vs * vr * vr;
+    let disc = b * b - 4.0 * a * c;
+    if a <= 0.0 || disc < 0.0 {
+        return f64::INFINITY;
+    }
+    let root = disc.sqrt();
+    [(-b - root) / (2.0 * a), (-b + root) / (2.0 * a)]
+        .into_iter()
+        .filter(|p| *p > 0.0)
+        .fold(f64::INFINITY, f64::min)
+}
 
 struct FastStart {
     lo: u64,

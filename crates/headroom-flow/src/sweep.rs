@@ -111,6 +111,16 @@ impl FlowState {
         self.j_im.copy_from_slice(&other.j_im);
     }
 
+    /// Sets every node voltage (real, imaginary, pu) from a function of the node index, for a
+    /// warm start predicted by the caller. Currents are recomputed by the next solve.
+    pub fn set_voltages(&mut self, mut voltage: impl FnMut(usize) -> (f64, f64)) {
+        for i in 0..self.v_re.len() {
+            let (re, im) = voltage(i);
+            self.v_re[i] = re;
+            self.v_im[i] = im;
+        }
+    }
+
     /// Number of nodes.
     pub fn n_nodes(&self) -> usize {
         self.v_re.len()
