@@ -14,8 +14,10 @@ fn line(kv: f64, r_ohm: f64, x_ohm: f64, rating_a: f64) -> Feeder {
 }
 
 fn study_no_load() -> Study {
-    let mut study = Study::default();
-    study.scenarios = vec![Scenario::new("empty", 0.0, 0.0)];
+    let mut study = Study {
+        scenarios: vec![Scenario::new("empty", 0.0, 0.0)],
+        ..Study::default()
+    };
     study.limits.voltage_change_pct = 0.0;
     study
 }
@@ -112,8 +114,10 @@ fn reverse_flow_binds_at_the_feeder_load() {
         vec![BranchRecord::new("b", "src", "far", 0.5, 0.4, 400.0)],
     )
     .unwrap();
-    let mut study = Study::default();
-    study.scenarios = vec![Scenario::new("peak", 1.0, 0.0)];
+    let mut study = Study {
+        scenarios: vec![Scenario::new("peak", 1.0, 0.0)],
+        ..Study::default()
+    };
     study.limits.reverse_flow = headroom_model::ReverseFlow::Forbid;
     let prepared = FeederStudy::prepare(&feeder, &study);
     let answer = prepared.node_capacity(0, BusIdx::new(1), &CapacityOptions::default());
