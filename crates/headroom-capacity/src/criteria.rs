@@ -107,6 +107,10 @@ pub(crate) const ALL: u8 = OVER | UNDER | THERMAL | CHANGE | REVERSE;
 /// voltage, current (1 MVA base) and power alike.
 pub(crate) const WORSE_EPS_PU: f64 = 1e-8;
 
+/// A quantity closer than this to its threshold (pu) gets its verdict settled on a tighter
+/// load flow.
+pub(crate) const NEAR_PU: f64 = 1e-8;
+
 /// What one solved injection looks like to the criteria.
 #[derive(Debug, Clone)]
 pub(crate) struct Snapshot {
@@ -221,14 +225,20 @@ impl Thresholds {
         t
     }
 
-    /// Which criteria (bits) the solved state violates. Convergence is judged by the caller.
-    pub fn violated(&self, network: &Network, state: &FlowState) -> u8 {
+    /// Which criteria (bits) the solved state violates, and whether any quantity lies within
+    /// [`NEAR_PU`] of its threshold (the verdict then deserves a tighter solution).
+    /// Convergence is judged by the caller.
+    pub fn violated(&self, network: &Network, state: &FlowState) -> (u8, bool) {
         let n = state.n_nodes();
         let (v_re, v_im) = (&state.v_re()[..n], &state.v_im()[..n]);
         let (j_re, j_im) = (&state.j_re()[..n], &state.j_im()[..n]);
         let (ov2, uv2) = (&self.ov2[..n], &self.uv2[..n]);
         let (ch_hi2, ch_lo2, th2) = (&self.ch_hi2[..n], &self.ch_lo2[..n], &self.th2[..n]);
         let mut mask = 0u8;
+        // Squared quantities: |q² − t²| < 2·t·NEAR_PU ⇔ |q − t| < NEAR_PU (to first order);
+        // 4·NEAR_PU keeps a margin for t up to 2 pu.
+        let near2 = 4.0 * NEAR_PU;
+        let mut near = false;
         for i in 0..n {
             let v2 = v_re[i] * v_re[i] + v_im[i] * v_im[i];
             let i2 = j_re[i] * j_re[i] + j_im[i] * j_im[i];
@@ -236,12 +246,20 @@ impl Thresholds {
                 | (u8::from(v2 < uv2[i]) * UNDER)
                 | (u8::from(v2 > ch_hi2[i] || v2 < ch_lo2[i]) * CHANGE)
                 | (u8::from(i > 0 && i2 > th2[i]) * THERMAL);
+            near |= (v2 - ov2[i]).abs() < near2
+                || (v2 - uv2[i]).abs() < near2
+                || (v2 - ch_hi2[i]).abs() < near2
+                || (v2 - ch_lo2[i]).abs() < near2
+                || (i > 0 && (i2 - th2[i]).abs() < near2 * th2[i].sqrt().max(1e-3));
         }
-        if self.head_p_min_pu > f64::NEG_INFINITY && head_p_pu(network, state) < self.head_p_min_pu
-        {
-            mask |= REVERSE;
+        if self.head_p_min_pu > f64::NEG_INFINITY {
+            let head_p = head_p_pu(network, state);
+            if head_p < self.head_p_min_pu {
+                mask |= REVERSE;
+            }
+            near |= (head_p - self.head_p_min_pu).abs() < NEAR_PU;
         }
-        mask
+        (mask, near)
     }
 
     /// Every (criterion, element) of `subset` in "upper" form: (limit, element, quantity,

@@ -3,7 +3,7 @@
 
 use std::collections::HashMap;
 
-use headroom_flow::{FlowState, Injection, solve};
+use headroom_flow::{FlowState, Injection, SolveSettings, solve};
 use headroom_model::BusIdx;
 
 use crate::criteria::{
@@ -97,6 +97,9 @@ struct Evaluator<'s, 'f> {
     resolution_kw: f64,
     max_steps: u64,
     work: FlowState,
+    /// The last converged injection's solution, and its injection (pu).
+    last: FlowState,
+    last_p_pu: Option<f64>,
     /// Series impedance shared by each node's path to the head and the plant's path, pu: the
     /// voltage change at node i from a current I injected at the plant is ≈ Z_common(i)·I.
     common_r_pu: Vec<f64>,
@@ -135,6 +138,8 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             // 20000 / 0.1 landing a hair below an integer).
             max_steps: (search.max_kw / search.resolution_kw + 1e-9).floor() as u64,
             work: case.base.clone(),
+            last: case.base.clone(),
+            last_p_pu: None,
             common_r_pu,
             common_x_pu,
             outcomes: HashMap::new(),
@@ -147,28 +152,40 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         steps as f64 * self.resolution_kw
     }
 
-    /// Solves the injection of `p_kw` and leaves the solution in `self.work`.
+    /// Solves the injection of `p_kw`; a converged solution is left in `self.last`.
     fn solve_at(&mut self, p_kw: f64) -> Outcome {
         let network = &self.study.network;
         let p_pu = network.kw_to_pu(p_kw);
-        let injection = Injection {
+        let injection = [Injection {
             bus: self.bus,
             p_pu,
             q_pu: p_pu * self.q_per_p,
-        };
-        self.warm_start(injection.p_pu, injection.q_pu);
-        let result = solve(
-            network,
-            &self.case.demand,
-            &[injection],
-            &mut self.work,
-            &self.study.solve_settings,
-        );
+        }];
+        self.warm_start(p_pu);
+        let settings = &self.study.solve_settings;
+        let demand = &self.case.demand;
+        let result = solve(network, demand, &injection, &mut self.work, settings);
         self.load_flows += 1;
         let outcome = match result {
             Ok(converged) => {
                 self.sweep_iterations += converged.iterations;
-                Outcome::Converged(self.case.thresholds.violated(network, &self.work))
+                let (mut mask, near) = self.case.thresholds.violated(network, &self.work);
+                if near {
+                    // Some quantity sits within a hair of its threshold: settle the verdict on
+                    // a tighter solution, so that it does not depend on where the solve started.
+                    let tight = SolveSettings {
+                        tol_pu: TIGHT_TOL_PU,
+                        max_iterations: settings.max_iterations,
+                    };
+                    if let Ok(refined) = solve(network, demand, &injection, &mut self.work, &tight)
+                    {
+                        self.sweep_iterations += refined.iterations;
+                        mask = self.case.thresholds.violated(network, &self.work).0;
+                    }
+                }
+                std::mem::swap(&mut self.work, &mut self.last);
+                self.last_p_pu = Some(p_pu);
+                Outcome::Converged(mask)
             }
             Err(failed) => {
                 self.sweep_iterations += failed.iterations;
@@ -179,21 +196,27 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         outcome
     }
 
-    /// Starts from the base case plus the linear voltage change of the injection (superposition
-    /// of the injected current through the shared path impedance). Depends only on the
-    /// injection, so a given injection always solves to the same numbers.
-    fn warm_start(&mut self, p_pu: f64, q_pu: f64) {
+    /// Starts from the nearest solved injection (the base case or the last converged one) plus
+    /// the linear voltage change of the difference: the injected current through the path
+    /// impedance the plant shares with each node (superposition).
+    fn warm_start(&mut self, p_pu: f64) {
+        let (anchor, anchor_p_pu) = match self.last_p_pu {
+            Some(last_p) if (p_pu - last_p).abs() < p_pu.abs() => (&self.last, last_p),
+            _ => (&self.case.base, 0.0),
+        };
         let base = &self.case.base;
         let k = self.bus.index();
         let (vr, vi) = (base.v_re()[k], base.v_im()[k]);
         let inv = 1.0 / (vr * vr + vi * vi);
-        // Injected current conj(S / V) at the plant, S = p + jq.
-        let (ir, ii) = ((p_pu * vr + q_pu * vi) * inv, (p_pu * vi - q_pu * vr) * inv);
+        // Injected current conj(S / V) at the plant for S = Δp·(1 + j·q_per_p).
+        let (dp, dq) = (p_pu - anchor_p_pu, (p_pu - anchor_p_pu) * self.q_per_p);
+        let (ir, ii) = ((dp * vr + dq * vi) * inv, (dp * vi - dq * vr) * inv);
+        let (common_r, common_x) = (&self.common_r_pu, &self.common_x_pu);
         self.work.set_voltages(|i| {
-            let (r, x) = (self.common_r_pu[i], self.common_x_pu[i]);
+            let (r, x) = (common_r[i], common_x[i]);
             (
-                base.v_re()[i] + r * ir - x * ii,
-                base.v_im()[i] + r * ii + x * ir,
+                anchor.v_re()[i] + r * ir - x * ii,
+                anchor.v_im()[i] + r * ii + x * ir,
             )
         });
     }
@@ -210,7 +233,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
     fn point(&mut self, p_kw: f64) -> (Outcome, Option<Snapshot>) {
         let outcome = self.solve_at(p_kw);
         let snapshot = match outcome {
-            Outcome::Converged(_) => Some(Snapshot::capture(&self.study.network, &self.work)),
+            Outcome::Converged(_) => Some(Snapshot::capture(&self.study.network, &self.last)),
             Outcome::Failed => None,
         };
         (outcome, snapshot)
@@ -380,6 +403,11 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         0
     }
 }
+
+/// Tolerance of the second solve that settles a verdict when a quantity lies within
+/// [`crate::criteria::NEAR_PU`] of its threshold, pu. Solutions reached from different starting
+/// points agree far closer than that margin, so verdicts do not depend on the search path.
+const TIGHT_TOL_PU: f64 = 1e-12;
 
 /// Predicted evaluations allowed once the answer is bracketed, before bisecting.
 const MAX_PREDICTED_IN_BRACKET: u32 = 4;
