@@ -1,1 +1,8 @@
 //! End-to-end tests: one module per area.
+
+mod command;
+mod demo_region;
+mod determinism;
+mod properties;
+mod reference;
+mod validation;
