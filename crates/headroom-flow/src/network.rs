@@ -55,6 +55,13 @@ impl Network {
         self.head_v_pu
     }
 
+    /// The same network with the head held at `head_v_pu` instead (for example a tap change at
+    /// the substation).
+    pub fn with_head_v_pu(mut self, head_v_pu: f64) -> Network {
+        self.head_v_pu = head_v_pu;
+        self
+    }
+
     /// Base voltage (line-to-line nominal), kV.
     pub fn v_base_kv(&self) -> f64 {
         self.v_base_kv
