@@ -136,10 +136,15 @@ impl Snapshot {
 
     pub fn refill(&mut self, network: &Network, state: &FlowState) {
         let n = state.n_nodes();
+        let (v_re, v_im) = (state.v_re(), state.v_im());
+        let (j_re, j_im) = (state.j_re(), state.j_im());
         for i in 0..n {
-            self.v_pu[i] = state.v_mag_pu(i);
-            self.i_pu[i] = state.current_pu(i);
+            // sqrt of the sum of squares: no overflow is possible at per-unit magnitudes, and it
+            // is several times faster than hypot.
+            self.v_pu[i] = (v_re[i] * v_re[i] + v_im[i] * v_im[i]).sqrt();
+            self.i_pu[i] = (j_re[i] * j_re[i] + j_im[i] * j_im[i]).sqrt();
         }
+        self.i_pu[0] = 0.0;
         self.head_p_pu = head_p_pu(network, state);
     }
 }
@@ -371,20 +376,44 @@ pub(crate) fn predict_crossing_pu(
     (p_a, a): (f64, &Snapshot),
     (p_b, b): (f64, &Snapshot),
 ) -> f64 {
-    let mut at_a = Vec::new();
-    thresholds.for_each_quantity(subset, base, a, |_, _, q, _| at_a.push(q));
-    let mut best = f64::INFINITY;
-    let mut k = 0;
-    thresholds.for_each_quantity(subset, base, b, |_, _, q_b, threshold| {
-        let q_a = at_a[k];
-        k += 1;
-        let slope = (q_b - q_a) / (p_b - p_a);
-        if slope > 0.0 && slope.is_finite() {
-            let p = p_a + (threshold - q_a) / slope;
-            if p < best {
-                best = p;
-            }
+    let dp = p_b - p_a;
+    // Where the line through (p_a, q_a) and (p_b, q_b) reaches the threshold, if it rises.
+    let cross = |q_a: f64, q_b: f64, threshold: f64| {
+        let slope = (q_b - q_a) / dp;
+        if slope > 0.0 {
+            p_a + (threshold - q_a) / slope
+        } else {
+            f64::INFINITY
         }
-    });
+    };
+    let n = a.v_pu.len();
+    let (va, vb) = (&a.v_pu[..n], &b.v_pu[..n]);
+    let mut best = f64::INFINITY;
+    if subset & OVER != 0 {
+        for i in 0..n {
+            best = best.min(cross(va[i], vb[i], thresholds.ov[i]));
+        }
+    }
+    if subset & UNDER != 0 {
+        for i in 0..n {
+            best = best.min(cross(-va[i], -vb[i], -thresholds.uv[i]));
+        }
+    }
+    if subset & THERMAL != 0 {
+        let (ia, ib) = (&a.i_pu[..n], &b.i_pu[..n]);
+        for i in 1..n {
+            best = best.min(cross(ia[i], ib[i], thresholds.th[i]));
+        }
+    }
+    if subset & CHANGE != 0 && thresholds.change_pu.is_finite() {
+        let v0 = &base.v_pu[..n];
+        for i in 0..n {
+            let (ca, cb) = ((va[i] - v0[i]).abs(), (vb[i] - v0[i]).abs());
+            best = best.min(cross(ca, cb, thresholds.change_pu));
+        }
+    }
+    if subset & REVERSE != 0 && thresholds.head_p_min_pu > f64::NEG_INFINITY {
+        best = best.min(cross(-a.head_p_pu, -b.head_p_pu, -thresholds.head_p_min_pu));
+    }
     best
 }
