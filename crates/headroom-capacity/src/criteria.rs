@@ -182,6 +182,8 @@ pub(crate) struct Thresholds {
     ch_hi2: Vec<f64>,
     ch_lo2: Vec<f64>,
     th2: Vec<f64>,
+    /// 1 / (2·th), turning a squared-current distance into a current distance (0 at the head).
+    inv_2th: Vec<f64>,
 }
 
 impl Thresholds {
@@ -206,6 +208,7 @@ impl Thresholds {
             ch_hi2: Vec::with_capacity(n),
             ch_lo2: Vec::with_capacity(n),
             th2: Vec::with_capacity(n),
+            inv_2th: Vec::with_capacity(n),
         };
         let signed_square = |v: f64| if v > 0.0 { v * v } else { -1.0 };
         for i in 0..n {
@@ -251,20 +254,24 @@ impl Thresholds {
                 | (u8::from(v2 < uv2[i]) * UNDER)
                 | (u8::from(v2 > ch_hi2[i] || v2 < ch_lo2[i]) * CHANGE)
                 | (u8::from(i > 0 && i2 > th2[i]) * THERMAL);
-            near |= (v2 - ov2[i]).abs() < near2
-                || (v2 - uv2[i]).abs() < near2
-                || (v2 - ch_hi2[i]).abs() < near2
-                || (v2 - ch_lo2[i]).abs() < near2
-                || (i > 0 && (i2 - th2[i]).abs() < near2 * th2[i].sqrt().max(1e-3));
+            let d = (v2 - ov2[i])
+                .abs()
+                .min((v2 - uv2[i]).abs())
+                .min((v2 - ch_hi2[i]).abs())
+                .min((v2 - ch_lo2[i]).abs());
+            v2_margin = v2_margin.min(d);
+            i_margin = i_margin.min((i2 - th2[i]).abs() * inv_2th[i]);
         }
+        // Voltage thresholds are below 1.5 pu: 2t < 3.
+        let mut margin = (v2_margin / 3.0).min(i_margin);
         if self.head_p_min_pu > f64::NEG_INFINITY {
             let head_p = head_p_pu(network, state);
             if head_p < self.head_p_min_pu {
                 mask |= REVERSE;
             }
-            near |= (head_p - self.head_p_min_pu).abs() < NEAR_PU;
+            margin = margin.min((head_p - self.head_p_min_pu).abs());
         }
-        (mask, near)
+        (mask, margin)
     }
 
     /// Every (criterion, element) of `subset` in "upper" form: (limit, element, quantity,
@@ -319,7 +326,7 @@ fn node(i: usize) -> Element {
 }
 
 /// Fractions closer than this (of the last step) count as a tie, broken by criterion order.
-const TIE_FRACTION: f64 = 1e-6;
+const TIE_FRACTION: f64 = 1e-3;
 
 /// Among the (criterion, element) pairs of `subset` violated at `fail` but not at `pass`, the one
 /// whose quantity crosses its threshold first on the straight line from `pass` to `fail`;

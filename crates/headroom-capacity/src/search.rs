@@ -164,34 +164,46 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         self.warm_start(p_pu);
         let settings = &self.study.solve_settings;
         let demand = &self.case.demand;
-        let result = solve(network, demand, &injection, &mut self.work, settings);
-        self.load_flows += 1;
-        let outcome = match result {
-            Ok(converged) => {
-                self.sweep_iterations += converged.iterations;
-                let (mut mask, near) = self.case.thresholds.violated(network, &self.work);
-                if near {
-                    // Some quantity sits within a hair of its threshold: settle the verdict on
-                    // a tighter solution, so that it does not depend on where the solve started.
-                    let tight = SolveSettings {
-                        tol_pu: TIGHT_TOL_PU,
-                        max_iterations: settings.max_iterations,
-                    };
-                    if let Ok(refined) = solve(network, demand, &injection, &mut self.work, &tight)
-                    {
-                        self.sweep_iterations += refined.iterations;
-                        mask = self.case.thresholds.violated(network, &self.work).0;
+        let thresholds = &self.case.thresholds;
+        // Solve loosely first: when every quantity is far from its threshold compared with the
+        // remaining error, the verdict is already the converged one. Otherwise go on to the
+        // study's tolerance, and within a hair of a threshold to a tighter one still, so that
+        // verdicts do not depend on where the solve started.
+        let stages = [
+            (LOOSE_TOL_PU.max(settings.tol_pu), SETTLED_MARGIN_PU),
+            (settings.tol_pu, crate::criteria::NEAR_PU),
+            (TIGHT_TOL_PU.min(settings.tol_pu), 0.0),
+        ];
+        let mut outcome = Outcome::Failed;
+        for (stage, &(tol_pu, settled_margin_pu)) in stages.iter().enumerate() {
+            let stage_settings = SolveSettings {
+                tol_pu,
+                max_iterations: settings.max_iterations,
+            };
+            match solve(network, demand, &injection, &mut self.work, &stage_settings) {
+                Ok(converged) => {
+                    self.sweep_iterations += converged.iterations;
+                    let (mask, margin_pu) = thresholds.violated(network, &self.work);
+                    outcome = Outcome::Converged(mask);
+                    if margin_pu > settled_margin_pu {
+                        break;
                     }
                 }
-                std::mem::swap(&mut self.work, &mut self.last);
-                self.last_p_pu = Some(p_pu);
-                Outcome::Converged(mask)
+                // The tight stage may stall on rounding: keep the verdict of the study's
+                // tolerance then.
+                Err(_) if stage == 2 => break,
+                Err(failed) => {
+                    self.sweep_iterations += failed.iterations;
+                    outcome = Outcome::Failed;
+                    break;
+                }
             }
-            Err(failed) => {
-                self.sweep_iterations += failed.iterations;
-                Outcome::Failed
-            }
-        };
+        }
+        self.load_flows += 1;
+        if let Outcome::Converged(_) = outcome {
+            std::mem::swap(&mut self.work, &mut self.last);
+            self.last_p_pu = Some(p_pu);
+        }
         self.outcomes.insert(p_kw.to_bits(), outcome);
         outcome
     }
@@ -239,56 +251,72 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         (outcome, snapshot)
     }
 
-    /// First estimate of where `subset` binds, pu, from the base case and the path impedance:
-    /// ΔV ≈ (R·P + X·Q)/V at the node (and its whole subtree), and the change of every branch
-    /// current on the path to the head.
-    fn first_estimate_pu(&self, subset: u8) -> f64 {
+    /// Estimate of where `subset` binds, pu, from the node's model anchored at a solved
+    /// injection (`anchor_p_pu`, `anchor`; the base case is the anchor at 0): the node's Thévenin
+    /// equivalent — base voltage behind the path impedance, the two-bus system, solved exactly —
+    /// corrected by its error at the anchor, for the voltage criteria of the node's subtree; the
+    /// current of every branch on the path to the head moved by the plant's current from the
+    /// anchor on; the head power for reverse flow. Elements off the plant's path are left to the
+    /// secant predictions.
+    fn model_estimate_pu(&self, subset: u8, anchor_p_pu: f64, anchor: &FlowState) -> f64 {
         let k = self.bus.index();
         let case = self.case;
         let base = &case.snapshot;
         let thresholds = &case.thresholds;
         let (r, x) = (self.study.path_r_pu[k], self.study.path_x_pu[k]);
-        let v0 = base.v_pu[k];
-        let rise_per_pu = (r + x * self.q_per_p) / v0;
         let qpp = self.q_per_p;
-        // The node's Thévenin equivalent (base voltage behind the path impedance) with the
-        // plant at its end is the two-bus system: solved exactly for the target voltage.
+        let v0 = base.v_pu[k];
+        let rise_per_pu = (r + x * qpp) / v0;
+        // The model's voltage change scaled to the solved one at the anchor (the loads along
+        // the way take a share of the plant's current roughly in proportion).
+        let scale = if anchor_p_pu == 0.0 {
+            1.0
+        } else {
+            let model = two_bus_voltage(v0, anchor_p_pu, r, x, qpp) - v0;
+            let solved = anchor.v_mag_pu(k) - v0;
+            if model.is_finite() && model != 0.0 && solved / model > 0.5 && solved / model < 2.0 {
+                solved / model
+            } else {
+                1.0
+            }
+        };
         let mut best = f64::INFINITY;
+        let mut to_voltage = |target: f64| {
+            let p = two_bus_p_for_voltage(v0, v0 + (target - v0) / scale, r, x, qpp);
+            if p >= anchor_p_pu {
+                best = best.min(p);
+            }
+        };
         if subset & OVER != 0 && rise_per_pu > 0.0 {
-            let target = v0 + case.subtree_ov_headroom[k];
-            best = best.min(two_bus_p_for_voltage(v0, target, r, x, qpp));
+            to_voltage(v0 + case.subtree_ov_headroom[k]);
         }
         if subset & UNDER != 0 && rise_per_pu < 0.0 {
-            let target = v0 - case.subtree_uv_headroom[k];
-            best = best.min(two_bus_p_for_voltage(v0, target, r, x, qpp));
+            to_voltage(v0 - case.subtree_uv_headroom[k]);
         }
         if subset & CHANGE != 0 && thresholds.change_pu.is_finite() && rise_per_pu != 0.0 {
-            let target = v0 + thresholds.change_pu.copysign(rise_per_pu);
-            best = best.min(two_bus_p_for_voltage(v0, target, r, x, qpp));
+            to_voltage(v0 + thresholds.change_pu.copysign(rise_per_pu));
         }
         if subset & THERMAL != 0 {
-            // Current injected per pu of P: conj(S / V) with S = 1 + j·q_per_p.
-            let (vr, vi) = (case.base.v_re()[k], case.base.v_im()[k]);
+            // Current injected per pu of P at the anchor's voltage: conj(S / V), S = 1 + j·qpp.
+            let (vr, vi) = (anchor.v_re()[k], anchor.v_im()[k]);
             let inv = 1.0 / (vr * vr + vi * vi);
-            let (ur, ui) = (
-                (vr + self.q_per_p * vi) * inv,
-                (vi - self.q_per_p * vr) * inv,
-            );
+            let (ur, ui) = ((vr + qpp * vi) * inv, (vi - qpp * vr) * inv);
             let u2 = ur * ur + ui * ui;
             let mut at = k;
             while at != 0 {
-                // |J0 − s·u| = limit: s²|u|² − 2s·Re(J0·conj u) + |J0|² − limit² = 0; the limit
-                // is above |J0| by construction, so there is one positive root.
-                let (jr, ji) = (case.base.j_re()[at], case.base.j_im()[at]);
+                // |J − s·u| = limit: s²|u|² − 2s·Re(J·conj u) + |J|² − limit² = 0, one root
+                // above 0 while the branch is within its limit at the anchor.
+                let (jr, ji) = (anchor.j_re()[at], anchor.j_im()[at]);
                 let a = jr * ur + ji * ui;
                 let c = jr * jr + ji * ji - thresholds.th[at] * thresholds.th[at];
                 let s = (a + (a * a - u2 * c).max(0.0).sqrt()) / u2;
-                best = best.min(s);
+                best = best.min(anchor_p_pu + s);
                 at = self.study.network.parents()[at] as usize;
             }
         }
         if subset & REVERSE != 0 && thresholds.head_p_min_pu > f64::NEG_INFINITY {
-            best = best.min((base.head_p_pu - thresholds.head_p_min_pu).max(0.0));
+            let head_p = crate::criteria::head_p_pu(&self.study.network, anchor);
+            best = best.min(anchor_p_pu + (head_p - thresholds.head_p_min_pu).max(0.0));
         }
         best
     }
@@ -312,12 +340,20 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             if lo >= self.max_steps || upper == lo + 1 {
                 return FastAnswer { lo, lo_snap, hi };
             }
+            let lo_pu = self.kw(lo) / 1000.0;
             let predicted_pu = match (&hi, &below) {
                 // Interpolate between the pass and a solved failure.
                 (Some((h, Some(h_snap))), _) => self.predict(subset, (lo, &lo_snap), (*h, h_snap)),
-                // Extrapolate from the last two passes.
-                (_, Some((b, b_snap))) => self.predict(subset, (*b, b_snap), (lo, &lo_snap)),
-                (_, None) => self.first_estimate_pu(subset),
+                // Extrapolate from the last two passes, and from the model anchored at the pass.
+                (_, Some((b, b_snap))) => {
+                    let secant = self.predict(subset, (*b, b_snap), (lo, &lo_snap));
+                    if self.last_p_pu == Some(lo_pu) {
+                        secant.min(self.model_estimate_pu(subset, lo_pu, &self.last))
+                    } else {
+                        secant
+                    }
+                }
+                (_, None) => self.model_estimate_pu(subset, 0.0, &self.case.base),
             };
             let predicted = predicted_pu * to_steps;
             let mut steps =
@@ -404,13 +440,33 @@ impl<'s, 'f> Evaluator<'s, 'f> {
     }
 }
 
-/// Tolerance of the second solve that settles a verdict when a quantity lies within
-/// [`crate::criteria::NEAR_PU`] of its threshold, pu. Solutions reached from different starting
-/// points agree far closer than that margin, so verdicts do not depend on the search path.
+/// First-stage tolerance of an injection's solve, pu.
+const LOOSE_TOL_PU: f64 = 1e-6;
+
+/// A verdict reached at [`LOOSE_TOL_PU`] stands when every quantity is at least this far from
+/// its threshold (pu): a hundred times the error left in such a solution.
+const SETTLED_MARGIN_PU: f64 = 1e-4;
+
+/// Tolerance of the last stage, for verdicts within [`crate::criteria::NEAR_PU`] of a
+/// threshold, pu. Solutions reached from different starting points agree far closer than that
+/// margin, so verdicts do not depend on the search path.
 const TIGHT_TOL_PU: f64 = 1e-12;
 
 /// Predicted evaluations allowed once the answer is bracketed, before bisecting.
 const MAX_PREDICTED_IN_BRACKET: u32 = 4;
+
+/// The receiving-end voltage of the same two-bus system at injection `p` (pu): the larger root
+/// of the quartic; NaN past the nose of the curve.
+fn two_bus_voltage(vs: f64, p: f64, r: f64, x: f64, q_per_p: f64) -> f64 {
+    let q = p * q_per_p;
+    let b = vs * vs + 2.0 * (r * p + x * q);
+    let c = (p * p + q * q) * (r * r + x * x);
+    let disc = b * b / 4.0 - c;
+    if disc < 0.0 {
+        return f64::NAN;
+    }
+    (b / 2.0 + disc.sqrt()).sqrt()
+}
 
 /// The smallest positive injection P (pu, with Q = P·`q_per_p`) that brings the far end of a
 /// line r + jx from a stiff source at `vs` to the voltage `vr`: the two-bus quartic
@@ -508,7 +564,9 @@ impl FeederStudy<'_> {
                                         FastStart {
                                             lo: *h,
                                             lo_snap: h_snap.clone(),
-                                            below: Some((answer.lo, answer.lo_snap.clone())),
+                                            // The secant from the base case: the limits
+                                            // sought lie well beyond the answer.
+                                            below: Some((0, case.snapshot.clone())),
                                             hi: None,
                                         },
                                     )
