@@ -229,24 +229,34 @@ impl Thresholds {
             };
             t.th.push(th);
             t.th2.push(th * th);
+            t.inv_2th.push(if th.is_finite() { 0.5 / th } else { 0.0 });
         }
         t
     }
 
-    /// Which criteria (bits) the solved state violates, and whether any quantity lies within
-    /// [`NEAR_PU`] of its threshold (the verdict then deserves a tighter solution).
-    /// Convergence is judged by the caller.
-    pub fn violated(&self, network: &Network, state: &FlowState) -> (u8, bool) {
+    /// Replaces the thermal limit of the branch feeding node `i` by `limit_pu` (a what-if
+    /// rating), kept above the base-case current `base_i_pu` as every thermal threshold is.
+    pub(crate) fn set_thermal_limit_pu(&mut self, i: usize, limit_pu: f64, base_i_pu: f64) {
+        debug_assert!(i > 0, "the head has no feeding branch");
+        let th = limit_pu.max(base_i_pu + WORSE_EPS_PU);
+        self.th[i] = th;
+        self.th2[i] = th * th;
+    }
+
+    /// Which criteria (bits) the solved state violates, and the smallest distance of any
+    /// quantity from its threshold (pu of voltage, current or power; approximate to first
+    /// order, erring small). Convergence is judged by the caller.
+    pub fn violated(&self, network: &Network, state: &FlowState) -> (u8, f64) {
         let n = state.n_nodes();
         let (v_re, v_im) = (&state.v_re()[..n], &state.v_im()[..n]);
         let (j_re, j_im) = (&state.j_re()[..n], &state.j_im()[..n]);
         let (ov2, uv2) = (&self.ov2[..n], &self.uv2[..n]);
         let (ch_hi2, ch_lo2, th2) = (&self.ch_hi2[..n], &self.ch_lo2[..n], &self.th2[..n]);
+        let inv_2th = &self.inv_2th[..n];
         let mut mask = 0u8;
-        // Squared quantities: |q² − t²| < 2·t·NEAR_PU ⇔ |q − t| < NEAR_PU (to first order);
-        // 4·NEAR_PU keeps a margin for t up to 2 pu.
-        let near2 = 4.0 * NEAR_PU;
-        let mut near = false;
+        // Distances in squared form: |q² − t²| ≈ 2t·|q − t|.
+        let mut v2_margin = f64::INFINITY;
+        let mut i_margin = f64::INFINITY;
         for i in 0..n {
             let v2 = v_re[i] * v_re[i] + v_im[i] * v_im[i];
             let i2 = j_re[i] * j_re[i] + j_im[i] * j_im[i];
