@@ -5,4 +5,5 @@ mod demo_region;
 mod determinism;
 mod properties;
 mod reference;
+mod report;
 mod validation;

@@ -29,6 +29,8 @@ pub enum Command {
     Map(MapArgs),
     /// Write a seeded synthetic feeder (or a region of them) in the feeder format.
     Synth(SynthArgs),
+    /// One self-contained HTML report (maps, charts, tables) from the folder of a map run.
+    Report(ReportArgs),
 }
 
 #[derive(Debug, Args)]
@@ -111,4 +113,27 @@ pub struct SynthArgs {
     /// Folder to write into: the feeder folder itself, or the region folder with --feeders.
     #[arg(long, value_name = "DIR")]
     pub out: PathBuf,
+}
+
+#[derive(Debug, Args)]
+pub struct ReportArgs {
+    /// The --out folder of `headroom map` (every nodes*, branches*, feeders* and baseline*
+    /// Parquet file under it is read, and run.json).
+    pub run_dir: PathBuf,
+    /// The HTML file to write (written whole or not at all).
+    #[arg(long, value_name = "FILE")]
+    pub out: PathBuf,
+    /// Date printed on the report, YYYY-MM-DD. Default: from SOURCE_DATE_EPOCH (seconds since
+    /// 1970) when set, else today (UTC).
+    #[arg(long, value_name = "YYYY-MM-DD", value_parser = crate::cmd_report::parse_date_arg)]
+    pub date: Option<String>,
+    /// Thresholds of the "share of nodes below" columns, kW, comma-separated.
+    #[arg(
+        long,
+        value_name = "KW,...",
+        value_delimiter = ',',
+        default_values_t = [100.0, 1000.0],
+        value_parser = crate::cmd_report::parse_threshold_kw
+    )]
+    pub below_kw: Vec<f64>,
 }

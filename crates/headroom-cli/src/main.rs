@@ -4,6 +4,7 @@
 mod args;
 mod cmd_flow;
 mod cmd_map;
+mod cmd_report;
 mod cmd_synth;
 mod cmd_validate;
 mod output;
@@ -49,6 +50,7 @@ fn main() -> ExitCode {
         Command::Flow(a) => cmd_flow::run(a),
         Command::Map(a) => cmd_map::run(a),
         Command::Synth(a) => cmd_synth::run(a),
+        Command::Report(a) => cmd_report::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
