@@ -70,7 +70,7 @@ figcaption { font-size: 12.5px; color: #444; margin-top: 4px; }
 svg { display: block; width: 100%; height: auto; max-width: 100%; }
 .charts { display: grid; grid-template-columns: repeat(auto-fit, minmax(280px, 1fr)); gap: 18px; align-items: start; }
 footer { margin-top: 40px; padding-top: 8px; border-top: 1px solid #cfcfcf; font-size: 12.5px; color: #444; }
-@page { size: A4; margin: 14mm 12mm; }
+@page { margin: 14mm 12mm; }
 @media print {
   body { font-size: 10pt; }
   table { font-size: 9pt; }
@@ -250,7 +250,7 @@ fn run_section(out: &mut String, report: &Report, options: &PageOptions) {
                 .meta
                 .search
                 .as_deref()
-                .map(|s| format!(", {} search", escape(s)))
+                .map(|s| format!(" (search: {})", escape(s)))
                 .unwrap_or_default()
         ),
     );
