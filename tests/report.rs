@@ -467,6 +467,26 @@ fn report_renders_in_headless_chromium() {
         assert_eq!(maps, expected, "one map per feeder, one mark per node");
     }
 
+    // The probe can fail: a page with one element wider than the window is caught.
+    let wide_page = dir.join("wide.html");
+    std::fs::write(
+        &wide_page,
+        html.replace(
+            "</body>",
+            &format!("<div style=\"width:3000px\">wide</div>{PROBE}</body>"),
+        ),
+    )
+    .unwrap();
+    let dom = headless(
+        &browser,
+        &wide_page,
+        &["--window-size=1280,4000", "--dump-dom"],
+    );
+    assert!(
+        dom.contains("outside DIV"),
+        "the probe missed a 3000 px element"
+    );
+
     // A screenshot: a real PNG of the page's top. With HEADROOM_UPDATE_SCREENSHOT=1 it
     // replaces docs/report-demo.png.
     let shot = dir.join("report-demo.png");
