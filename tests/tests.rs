@@ -6,4 +6,5 @@ mod determinism;
 mod properties;
 mod reference;
 mod report;
+mod scale;
 mod validation;

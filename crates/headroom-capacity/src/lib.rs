@@ -7,7 +7,8 @@
 //! scenario's demand and base-case solution), [`NodeCapacity`] (one node's answer), [`Limit`]
 //! and [`Element`] (what binds, where), [`SearchMethod`] (the certified fast search or the
 //! stepped reference; both return the same numbers), and [`map_feeders`] (every feeder, scenario
-//! and node in parallel, in a stable order).
+//! and node in parallel, in a stable order), [`map_stream`] (feeder by feeder, with bounded
+//! memory, for regions of any size) and [`Shard`] (a deterministic share of a region's feeders).
 //!
 //! ```
 //! use headroom_capacity::{CapacityOptions, FeederStudy, Limit};
@@ -34,8 +35,15 @@ mod criteria;
 mod prepare;
 mod run;
 mod search;
+mod shard;
+mod stream;
 
 pub use criteria::{Element, Limit, Violation};
 pub use prepare::{BaseBranch, FeederStudy, ScenarioCase};
-pub use run::{FeederMap, RunStats, ScenarioMap, map_feeders};
+pub use run::{FeederMap, RunStats, ScenarioMap, map_feeder, map_feeders};
 pub use search::{CapacityOptions, NodeCapacity, SearchMethod};
+pub use shard::{
+    MAX_SHARDS, SHARD_COUNT_VARIABLE, Shard, ShardError, ShardSource, fnv1a_64,
+    shard_from_environment,
+};
+pub use stream::{StreamJob, map_stream};

@@ -128,45 +128,86 @@ pub fn map_feeders<'f>(
     let mut maps = Vec::with_capacity(prepared.len());
     for p in &prepared {
         let n_answers = p.feeder.n_nodes() - 1;
-        let mut hosting_kw = Array2::zeros((n_scenarios, n_answers));
-        let mut scenarios = Vec::with_capacity(n_scenarios);
-        for (s, case) in p.cases.iter().enumerate() {
-            let nodes: Vec<NodeCapacity> = answers.by_ref().take(n_answers).collect();
-            for (j, answer) in nodes.iter().enumerate() {
-                hosting_kw[[s, j]] = answer.hosting_kw;
-                stats.load_flows += u64::from(answer.load_flows);
-                stats.sweep_iterations += u64::from(answer.sweep_iterations);
-                let l = Limit::ALL
-                    .iter()
-                    .position(|&l| l == answer.limit)
-                    .unwrap_or(0);
-                stats.by_limit[l] += 1;
-            }
-            let base_iterations = match &case.base_result {
-                Ok(c) => c.iterations,
-                Err(e) => e.iterations,
-            };
-            stats.load_flows += 1;
-            stats.base_cases += 1;
-            stats.sweep_iterations += u64::from(base_iterations);
-            stats.base_sweep_iterations += u64::from(base_iterations);
-            stats.node_results += nodes.len() as u64;
-            let baseline = p.baseline_violations(s);
-            stats.baseline_violations += baseline.len() as u64;
-            scenarios.push(ScenarioMap {
-                scenario: case.scenario.name.clone(),
-                nodes,
-                base_branches: p.base_branches(s),
-                baseline,
-                base_head_power: p.base_head_power(s),
-            });
-        }
-        stats.feeders += 1;
-        maps.push(FeederMap {
-            feeder: p.feeder,
-            scenarios,
-            hosting_kw,
-        });
+        let feeder_answers: Vec<NodeCapacity> =
+            answers.by_ref().take(n_answers * n_scenarios).collect();
+        let (map, feeder_stats) = assemble(p, feeder_answers);
+        stats.add(&feeder_stats);
+        maps.push(map);
     }
     (maps, stats)
+}
+
+/// Maps one feeder: prepares it (base cases), then solves every (scenario, node) in parallel on
+/// the current rayon pool. `progress` is called with the number of node answers finished since
+/// its last call (from worker threads). Gives the same answers, in the same order, as the
+/// feeder's entry of [`map_feeders`], whatever the number of threads.
+pub fn map_feeder<'f>(
+    feeder: &'f Feeder,
+    study: &Study,
+    options: &CapacityOptions,
+    progress: &(dyn Fn(u64) + Sync),
+) -> (FeederMap<'f>, RunStats) {
+    let prepared = FeederStudy::prepare(feeder, study);
+    let n_answers = feeder.n_nodes() - 1;
+    let n_tasks = n_answers * study.scenarios.len();
+    let answers: Vec<NodeCapacity> = (0..n_tasks)
+        .into_par_iter()
+        .map(|task| {
+            // Scenario-major, then depth-first node order (the head, index 0, excluded).
+            let (s, j) = (task / n_answers, task % n_answers);
+            let answer = prepared.node_capacity(s, BusIdx::new(j as u32 + 1), options);
+            progress(1);
+            answer
+        })
+        .collect();
+    assemble(&prepared, answers)
+}
+
+/// One feeder's map and counts from its answers, scenario-major then node order.
+fn assemble<'f>(p: &FeederStudy<'f>, answers: Vec<NodeCapacity>) -> (FeederMap<'f>, RunStats) {
+    let n_scenarios = p.cases.len();
+    let n_answers = p.feeder.n_nodes() - 1;
+    debug_assert_eq!(answers.len(), n_scenarios * n_answers);
+    let mut stats = RunStats::default();
+    let mut answers = answers.into_iter();
+    let mut hosting_kw = Array2::zeros((n_scenarios, n_answers));
+    let mut scenarios = Vec::with_capacity(n_scenarios);
+    for (s, case) in p.cases.iter().enumerate() {
+        let nodes: Vec<NodeCapacity> = answers.by_ref().take(n_answers).collect();
+        for (j, answer) in nodes.iter().enumerate() {
+            hosting_kw[[s, j]] = answer.hosting_kw;
+            stats.load_flows += u64::from(answer.load_flows);
+            stats.sweep_iterations += u64::from(answer.sweep_iterations);
+            let l = Limit::ALL
+                .iter()
+                .position(|&l| l == answer.limit)
+                .unwrap_or(0);
+            stats.by_limit[l] += 1;
+        }
+        let base_iterations = match &case.base_result {
+            Ok(c) => c.iterations,
+            Err(e) => e.iterations,
+        };
+        stats.load_flows += 1;
+        stats.base_cases += 1;
+        stats.sweep_iterations += u64::from(base_iterations);
+        stats.base_sweep_iterations += u64::from(base_iterations);
+        stats.node_results += nodes.len() as u64;
+        let baseline = p.baseline_violations(s);
+        stats.baseline_violations += baseline.len() as u64;
+        scenarios.push(ScenarioMap {
+            scenario: case.scenario.name.clone(),
+            nodes,
+            base_branches: p.base_branches(s),
+            baseline,
+            base_head_power: p.base_head_power(s),
+        });
+    }
+    stats.feeders += 1;
+    let map = FeederMap {
+        feeder: p.feeder,
+        scenarios,
+        hosting_kw,
+    };
+    (map, stats)
 }

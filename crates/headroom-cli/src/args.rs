@@ -71,7 +71,8 @@ pub struct MapArgs {
     /// A feeder folder, or a folder of feeder folders.
     pub path: PathBuf,
     /// Folder to write nodes.parquet, branches.parquet, feeders.parquet, baseline.parquet and
-    /// run.json into (created if missing).
+    /// run.json into (created if missing). A run stopped part-way and started again with the
+    /// same arguments keeps the feeders already done there and maps the rest.
     #[arg(long, value_name = "DIR")]
     pub out: PathBuf,
     /// Study settings (study.toml); default: the format's defaults.
@@ -94,6 +95,28 @@ pub struct MapArgs {
     /// No progress bar.
     #[arg(long, short)]
     pub quiet: bool,
+    /// Map only shard I of N of the feeders (1-based, e.g. 2/3), chosen from the feeder id
+    /// alone; files are named nodes-shard-I-of-N.parquet etc. Default: from a Slurm job array
+    /// or a Kubernetes Indexed Job when run in one, else all feeders.
+    #[arg(long, value_name = "I/N", value_parser = parse_shard)]
+    pub shard: Option<headroom_capacity::Shard>,
+    /// Number of shards when the index comes from JOB_COMPLETION_INDEX (Kubernetes Indexed Job);
+    /// the variable HEADROOM_SHARD_COUNT does the same.
+    #[arg(
+        long,
+        value_name = "N",
+        conflicts_with = "shard",
+        value_parser = clap::value_parser!(u32).range(1..=i64::from(headroom_capacity::MAX_SHARDS))
+    )]
+    pub shard_count: Option<u32>,
+    /// Start over: remove this run's earlier results and unfinished work in DIR instead of
+    /// resuming.
+    #[arg(long)]
+    pub fresh: bool,
+}
+
+fn parse_shard(text: &str) -> Result<headroom_capacity::Shard, String> {
+    headroom_capacity::Shard::parse(text).map_err(|e| e.to_string())
 }
 
 #[derive(Debug, Args)]

@@ -1,22 +1,66 @@
 //! `headroom map`: hosting capacity of every node, every scenario, to GeoParquet.
+//!
+//! The run streams: the feeder folders are listed, every feeder of this run's shard is read and
+//! checked once (nothing kept but its id, input hash and CRS), and only then, when the input is
+//! valid, anything is written. Feeders are then loaded, solved and written one by one, a few at
+//! a time, each into its own part folder; when all are done the parts are concatenated into the
+//! result tables, the manifest is written last, and the parts are removed. A run stopped on the
+//! way and started again with the same arguments keeps the feeders already written (see
+//! `workdir.rs` for the layout and the rules).
 
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+use std::sync::Mutex;
 use std::time::Instant;
 
-use headroom_capacity::{CapacityOptions, FeederMap, SearchMethod, map_feeders};
-use headroom_model::{ReverseFlow, Study};
+use rayon::prelude::*;
+
+use headroom_capacity::{
+    CapacityOptions, FeederMap, Limit, RunStats, SearchMethod, Shard, ShardSource, StreamJob,
+    fnv1a_64, map_stream, shard_from_environment,
+};
+use headroom_export::Crs;
+use headroom_model::{
+    CONDUCTORS_FILE, Diagnostic, ModelErrors, ReverseFlow, Study, discover_feeders, load_feeder,
+};
 
 use crate::args::{MapArgs, SearchArg};
-use crate::output::{load_inputs, prepare_out_dir, write_table, write_text};
+use crate::merge::concat_parts;
+use crate::output::{write_table, write_text};
+use crate::progress::MapProgress;
 use crate::tables::{
-    baseline_table, branches_table, crs_groups, feeders_table, limit_counts, nodes_table,
-    stats_line, summarise,
+    baseline_table, branches_table, custom_crs, feeder_crs, feeders_table, limit_counts,
+    nodes_table, stats_line, summarise,
 };
-use crate::{CAUTION, Failure, progress};
+use crate::workdir::{
+    FeederRecord, KINDS, Layout, ScenarioRecord, Settings, Start, StatsRecord, Wanted, sync_dir,
+};
+use crate::{CAUTION, Failure};
+
+/// A feeder of this run as the checking pass leaves it: nothing of the model is kept.
+struct FeederEntry {
+    folder: PathBuf,
+    id: String,
+    input_hash: String,
+    crs_group: String,
+    /// Nodes without the head: answers per scenario.
+    n_answers: u64,
+}
 
 #[allow(clippy::print_stdout)]
 pub fn run(args: &MapArgs) -> Result<(), Failure> {
-    let (feeders, study) = load_inputs(&args.path, args.study.as_deref())?;
-    let groups = crs_groups(&feeders, args.crs_projjson.as_deref())?;
+    let started = Instant::now();
+    let shard_choice = shard_from_environment(args.shard, args.shard_count, &|name| {
+        std::env::var(name).ok()
+    })
+    .map_err(|e| Failure::Usage(e.to_string()))?;
+    let shard = shard_choice.as_ref().map_or_else(Shard::whole, |(s, _)| *s);
+    let study = Study::load(args.study.as_deref());
+    let folders = match discover_feeders(&args.path) {
+        Ok(folders) => folders,
+        Err(found) => return Err(invalid_input(found.errors, study.err())),
+    };
+    let custom = custom_crs(args.crs_projjson.as_deref())?;
     let options = CapacityOptions {
         method: match args.search {
             SearchArg::Fast => SearchMethod::Fast,
@@ -24,75 +68,465 @@ pub fn run(args: &MapArgs) -> Result<(), Failure> {
         },
         criteria_detail: !args.no_criteria_detail,
     };
-    let total: u64 = feeders
-        .iter()
-        .map(|f| (f.n_nodes() as u64 - 1) * study.scenarios.len() as u64)
-        .sum();
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(args.threads.unwrap_or(0) as usize)
         .build()
         .map_err(|e| Failure::Usage(format!("cannot start worker threads: {e}")))?;
 
-    let started = Instant::now();
-    let bar = progress::bar(total, args.quiet);
-    let (maps, stats) = pool.install(|| map_feeders(&feeders, &study, &options, &|n| bar.inc(n)));
-    bar.finish_and_clear();
+    let n_region = folders.len();
+    let own: Vec<PathBuf> = folders
+        .into_iter()
+        .filter(|folder| shard.contains(&folder_id(folder)))
+        .collect();
+    if let Some((shard, source)) = &shard_choice {
+        println!(
+            "Shard {shard} (from {source}): {} of the {n_region} feeder(s) under {}",
+            own.len(),
+            args.path.display()
+        );
+    }
+    // Errors of the feeders and of the study are reported together, as `headroom validate` does.
+    let (entries, study) = match (pool.install(|| check_feeders(&own, custom.as_ref())), study) {
+        (Ok(entries), Ok(study)) => (entries, study),
+        (entries, study) => {
+            return Err(invalid_input(
+                entries.err().unwrap_or_default(),
+                study.err(),
+            ));
+        }
+    };
+    let crs_of_group = crs_of_groups(&entries, custom.as_ref())?;
+
+    let settings = run_settings(&study, &options, args.crs_projjson.as_deref())?;
+    let layout = Layout {
+        out: args.out.clone(),
+        shard,
+    };
+    let wanted: Vec<Wanted<'_>> = entries
+        .iter()
+        .map(|e| Wanted {
+            id: &e.id,
+            input_hash: &e.input_hash,
+        })
+        .collect();
+    let done = match crate::workdir::start(&layout, &settings, &wanted, args.fresh)? {
+        Start::Complete(records) => {
+            print_summary(&records);
+            let total = total_stats(&records);
+            println!(
+                "{} already holds this run, complete, with the same settings and inputs: nothing \
+                 was mapped again (--fresh maps it again). {} node answers on {} feeder(s).",
+                args.out.display(),
+                total.node_results,
+                total.feeders
+            );
+            println!("Results in {}", args.out.display());
+            println!("{CAUTION}");
+            return Ok(());
+        }
+        Start::Run { done } => done,
+    };
+    let n_resumed = done.len();
+
+    let metadata = run_metadata(&study, &options);
+    let todo: Vec<&FeederEntry> = entries
+        .iter()
+        .filter(|e| !done.contains_key(&e.id))
+        .collect();
+    let records = Mutex::new(done);
+    let n_scenarios = study.scenarios.len() as u64;
+    let answers_todo: u64 = todo.iter().map(|e| e.n_answers * n_scenarios).sum();
+    let progress = MapProgress::new(
+        entries.len() as u64,
+        n_resumed as u64,
+        answers_todo,
+        args.quiet,
+    );
+    let load = |i: usize| {
+        load_feeder(&todo[i].folder).map_err(|errors| {
+            let n = errors.errors.len();
+            Failure::Invalid(format!(
+                "{errors}\n{n} error{} found in {}, which changed while the run was under way; \
+                 the feeders finished so far are kept in {}: fix the input and run again to \
+                 finish.",
+                if n == 1 { "" } else { "s" },
+                todo[i].folder.display(),
+                args.out.display()
+            ))
+        })
+    };
+    let finish = |i: usize, map: &FeederMap<'_>, stats: &RunStats| {
+        let entry = todo[i];
+        let record = feeder_record(map, stats, entry);
+        let crs = &crs_of_group[&entry.crs_group];
+        write_feeder_parts(&layout, map, &record, crs, &metadata)?;
+        records
+            .lock()
+            .unwrap_or_else(|p| p.into_inner())
+            .insert(record.feeder.clone(), record);
+        progress.feeder_done();
+        Ok(())
+    };
+    let job = StreamJob {
+        n_feeders: todo.len(),
+        feeders_in_flight: pool.current_num_threads().clamp(2, 8),
+        study: &study,
+        options: &options,
+        load: &load,
+        progress: &|n| progress.answers(n),
+        finish: &finish,
+    };
+    let result = map_stream(&job, &pool);
+    progress.finish();
+    result?;
     let seconds = started.elapsed().as_secs_f64();
 
-    prepare_out_dir(&args.out)?;
-    let metadata = run_metadata(&study, &options);
-    let all: Vec<&FeederMap<'_>> = maps.iter().collect();
-    for group in &groups {
-        let members: Vec<&FeederMap<'_>> = group.feeders.iter().map(|&i| &maps[i]).collect();
-        write_table(
-            &args.out,
-            &format!("nodes{}.parquet", group.suffix),
-            &nodes_table(&members, &group.crs, &metadata),
-        )?;
-        write_table(
-            &args.out,
-            &format!("branches{}.parquet", group.suffix),
-            &branches_table(&members, &group.crs, &metadata),
-        )?;
-    }
-    write_table(
-        &args.out,
-        "feeders.parquet",
-        &feeders_table(&all, &metadata),
-    )?;
-    write_table(
-        &args.out,
-        "baseline.parquet",
-        &baseline_table(&all, &metadata),
-    )?;
-    write_text(
-        &args.out.join("run.json"),
-        &run_json(&args.path.display().to_string(), &study, &options, &maps),
-    )?;
+    let records: Vec<FeederRecord> = records
+        .into_inner()
+        .unwrap_or_else(|p| p.into_inner())
+        .into_values()
+        .collect();
+    let manifest = manifest_json(
+        &args.path.display().to_string(),
+        &study,
+        &options,
+        &settings,
+        shard_choice.as_ref(),
+        &write_results(&layout, &records)?,
+        &records,
+    );
+    write_text(&layout.manifest(), &manifest)?;
+    sync_dir(&layout.out);
+    std::fs::remove_dir_all(layout.work())
+        .map_err(|e| Failure::Output(format!("cannot remove {}: {e}", layout.work().display())))?;
+    sync_dir(&layout.out);
 
-    for map in &maps {
-        let f = map.feeder;
+    print_summary(&records);
+    if records.is_empty() {
+        println!("No feeder falls in shard {shard}: nothing to map.");
+    }
+    println!("{}", stats_line(&total_stats(&records), seconds));
+    if n_resumed > 0 {
+        println!(
+            "{n_resumed} of these feeder(s) were finished by an earlier run that was stopped; \
+             {} mapped now.",
+            records.len() - n_resumed
+        );
+    }
+    println!("Results in {}", args.out.display());
+    println!("{CAUTION}");
+    Ok(())
+}
+
+/// The feeder id of a folder: its name (as the model reader names feeders).
+fn folder_id(folder: &Path) -> String {
+    match folder.file_name() {
+        Some(name) => name.to_string_lossy().into_owned(),
+        None => std::fs::canonicalize(folder)
+            .ok()
+            .and_then(|full| full.file_name().map(|n| n.to_string_lossy().into_owned()))
+            .unwrap_or_else(|| "feeder".to_string()),
+    }
+}
+
+/// Feeder errors, then study errors, as one failure.
+fn invalid_input(mut errors: Vec<Diagnostic>, study: Option<ModelErrors>) -> Failure {
+    if let Some(study) = study {
+        errors.extend(study.errors);
+    }
+    ModelErrors { errors }.into()
+}
+
+/// Reads and checks every feeder (in parallel, one model in memory per thread), returning the
+/// errors of all of them together, each once. Warnings go to stderr, each once.
+#[allow(clippy::print_stderr)]
+fn check_feeders(
+    folders: &[PathBuf],
+    custom: Option<&Crs>,
+) -> Result<Vec<FeederEntry>, Vec<Diagnostic>> {
+    let results: Vec<(Checked, Vec<Diagnostic>)> = folders
+        .par_iter()
+        .map(|folder| check_feeder(folder, custom))
+        .collect();
+    let mut entries = Vec::with_capacity(results.len());
+    let mut errors = Vec::new();
+    let mut seen = std::collections::HashSet::new();
+    for (result, warnings) in results {
+        for warning in warnings {
+            if seen.insert(warning.to_string()) {
+                eprintln!("warning: {warning}");
+            }
+        }
+        match result {
+            Ok(entry) => entries.push(entry),
+            // A shared conductors.csv is read with every feeder: report its errors once.
+            Err(found) => errors.extend(
+                found
+                    .into_iter()
+                    .filter(|error| seen.insert(error.to_string())),
+            ),
+        }
+    }
+    if errors.is_empty() {
+        Ok(entries)
+    } else {
+        Err(errors)
+    }
+}
+
+/// A feeder checked: its entry, or its errors.
+type Checked = Result<FeederEntry, Vec<Diagnostic>>;
+
+/// Reads and checks one feeder; also returns its warnings.
+fn check_feeder(folder: &Path, custom: Option<&Crs>) -> (Checked, Vec<Diagnostic>) {
+    let feeder = match load_feeder(folder) {
+        Ok(feeder) => feeder,
+        Err(errors) => return (Err(errors.errors), Vec::new()),
+    };
+    let warnings = feeder.warnings().to_vec();
+    let crs_group = match feeder_crs(&feeder, custom) {
+        Ok((key, _)) => key,
+        Err(error) => return (Err(vec![error]), warnings),
+    };
+    let hash = match input_hash(folder) {
+        Ok(hash) => hash,
+        Err(error) => return (Err(vec![error]), warnings),
+    };
+    let entry = FeederEntry {
+        folder: folder.to_path_buf(),
+        id: feeder.id().to_string(),
+        input_hash: format!("{hash:016x}"),
+        crs_group,
+        n_answers: feeder.n_nodes() as u64 - 1,
+    };
+    (Ok(entry), warnings)
+}
+
+/// Hash of a feeder's input files (its own and the shared conductor library): a resumed run
+/// maps again every feeder whose files changed.
+fn input_hash(folder: &Path) -> Result<u64, Diagnostic> {
+    let full = std::fs::canonicalize(folder).unwrap_or_else(|_| folder.to_path_buf());
+    let shared = full.parent().map(|parent| parent.join(CONDUCTORS_FILE));
+    let files = ["feeder.toml", "nodes.csv", "branches.csv", CONDUCTORS_FILE]
+        .iter()
+        .map(|name| full.join(name))
+        .chain(shared);
+    let mut listing = String::new();
+    for (i, file) in files.enumerate() {
+        match std::fs::read(&file) {
+            Ok(bytes) => listing.push_str(&format!("{i}:{:016x};", fnv1a_64(&bytes))),
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
+                listing.push_str(&format!("{i}:-;"));
+            }
+            Err(e) => return Err(Diagnostic::error(&file, format!("cannot read: {e}"))),
+        }
+    }
+    Ok(fnv1a_64(listing.as_bytes()))
+}
+
+/// The CRS of every group of this run's feeders.
+fn crs_of_groups(
+    entries: &[FeederEntry],
+    custom: Option<&Crs>,
+) -> Result<BTreeMap<String, Crs>, Failure> {
+    let mut groups = BTreeMap::new();
+    for entry in entries {
+        if groups.contains_key(&entry.crs_group) {
+            continue;
+        }
+        // Read again for its header only; the checking pass found it valid.
+        let feeder = load_feeder(&entry.folder)?;
+        let (key, crs) =
+            feeder_crs(&feeder, custom).map_err(|e| ModelErrors { errors: vec![e] })?;
+        groups.insert(key, crs);
+    }
+    Ok(groups)
+}
+
+/// The settings a resumed run must share.
+fn run_settings(
+    study: &Study,
+    options: &CapacityOptions,
+    crs_projjson: Option<&Path>,
+) -> Result<Settings, Failure> {
+    let crs_projjson = match crs_projjson {
+        None => None,
+        Some(path) => {
+            let bytes = std::fs::read(path).map_err(|e| {
+                Failure::Invalid(format!("error: {}: cannot read: {e}", path.display()))
+            })?;
+            Some(format!("{:016x}", fnv1a_64(&bytes)))
+        }
+    };
+    Ok(Settings {
+        version: env!("CARGO_PKG_VERSION").to_string(),
+        study: study_text(study),
+        study_key: format!("{:016x}", fnv1a_64(format!("{study:?}").as_bytes())),
+        scenarios: study.scenarios.iter().map(|s| s.name.clone()).collect(),
+        search: search_text(options),
+        criteria_detail: options.criteria_detail,
+        crs_projjson,
+    })
+}
+
+fn search_text(options: &CapacityOptions) -> String {
+    format!("{:?}", options.method).to_lowercase()
+}
+
+/// The record of one solved feeder.
+fn feeder_record(map: &FeederMap<'_>, stats: &RunStats, entry: &FeederEntry) -> FeederRecord {
+    let f = map.feeder;
+    let header = f.header();
+    let scenarios = map
+        .scenarios
+        .iter()
+        .enumerate()
+        .map(|(s, sc)| {
+            let summary = summarise(map, s);
+            ScenarioRecord {
+                scenario: sc.scenario.clone(),
+                hosting_kw_min: summary.hosting.map(|h| h.0),
+                hosting_kw_median: summary.hosting.map(|h| h.1),
+                hosting_kw_max: summary.hosting.map(|h| h.2),
+                binding: Limit::ALL
+                    .iter()
+                    .zip(summary.by_limit)
+                    .map(|(l, n)| (l.as_str().to_string(), n))
+                    .collect(),
+                baseline_violations: summary.baseline as u64,
+            }
+        })
+        .collect();
+    FeederRecord {
+        feeder: entry.id.clone(),
+        name: header.name.clone(),
+        substation: header.substation.clone(),
+        region: header.region.clone(),
+        nominal_kv: header.nominal_kv,
+        crs: header.crs.clone(),
+        nodes: f.n_nodes(),
+        input_hash: entry.input_hash.clone(),
+        crs_group: entry.crs_group.clone(),
+        scenarios,
+        stats: StatsRecord {
+            node_results: stats.node_results,
+            load_flows: stats.load_flows,
+            sweep_iterations: stats.sweep_iterations,
+            base_sweep_iterations: stats.base_sweep_iterations,
+            base_cases: stats.base_cases,
+            baseline_violations: stats.baseline_violations,
+        },
+    }
+}
+
+/// Writes one feeder's four tables and its record into a staging folder, then renames the
+/// folder into `done/`: a feeder is either wholly there or not at all.
+fn write_feeder_parts(
+    layout: &Layout,
+    map: &FeederMap<'_>,
+    record: &FeederRecord,
+    crs: &Crs,
+    metadata: &[(&'static str, String)],
+) -> Result<(), Failure> {
+    let staging = layout.staging_dir().join(&record.feeder);
+    let done = layout.done_dir().join(&record.feeder);
+    let io = |action: &str, path: &Path, e: std::io::Error| {
+        Failure::Output(format!("cannot {action} {}: {e}", path.display()))
+    };
+    if staging.exists() {
+        std::fs::remove_dir_all(&staging).map_err(|e| io("remove", &staging, e))?;
+    }
+    std::fs::create_dir_all(&staging).map_err(|e| io("create folder", &staging, e))?;
+    let maps = [map];
+    let name = |kind: &str| format!("part-{kind}.parquet");
+    write_table(&staging, &name("nodes"), &nodes_table(&maps, crs, metadata))?;
+    write_table(
+        &staging,
+        &name("branches"),
+        &branches_table(&maps, crs, metadata),
+    )?;
+    write_table(&staging, &name("feeders"), &feeders_table(&maps, metadata))?;
+    write_table(
+        &staging,
+        &name("baseline"),
+        &baseline_table(&maps, metadata),
+    )?;
+    let summary = serde_json::to_string_pretty(record).unwrap_or_default() + "\n";
+    write_text(&staging.join("summary.json"), &summary)?;
+    sync_dir(&staging);
+    if done.exists() {
+        std::fs::remove_dir_all(&done).map_err(|e| io("remove", &done, e))?;
+    }
+    std::fs::rename(&staging, &done).map_err(|e| io("rename", &staging, e))?;
+    sync_dir(&layout.done_dir());
+    Ok(())
+}
+
+/// Concatenates the parts into the result tables (one nodes and branches file per CRS group,
+/// feeders in id order) and returns the file names written.
+fn write_results(layout: &Layout, records: &[FeederRecord]) -> Result<Vec<String>, Failure> {
+    let mut files = Vec::new();
+    if records.is_empty() {
+        return Ok(files);
+    }
+    let mut groups: BTreeMap<&str, Vec<&FeederRecord>> = BTreeMap::new();
+    for record in records {
+        groups.entry(&record.crs_group).or_default().push(record);
+    }
+    let part = |record: &FeederRecord, kind: &str| {
+        Layout::part_file(&layout.done_dir().join(&record.feeder), kind)
+    };
+    let mut write = |kind: &str, suffix: &str, members: &[&FeederRecord]| {
+        let name = layout.table_name(kind, suffix);
+        let parts: Vec<PathBuf> = members.iter().map(|r| part(r, kind)).collect();
+        concat_parts(&parts, &layout.out.join(&name))?;
+        files.push(name);
+        Ok::<(), Failure>(())
+    };
+    let several = groups.len() > 1;
+    for (key, members) in &groups {
+        let suffix = if several {
+            format!("-{key}")
+        } else {
+            String::new()
+        };
+        write(KINDS[0], &suffix, members)?;
+        write(KINDS[1], &suffix, members)?;
+    }
+    let all: Vec<&FeederRecord> = records.iter().collect();
+    write(KINDS[2], "", &all)?;
+    write(KINDS[3], "", &all)?;
+    Ok(files)
+}
+
+fn total_stats(records: &[FeederRecord]) -> RunStats {
+    let mut total = RunStats::default();
+    for record in records {
+        total.add(&record.run_stats());
+    }
+    total
+}
+
+/// Per feeder and scenario: lowest, median and highest capacity, and what binds.
+#[allow(clippy::print_stdout)]
+fn print_summary(records: &[FeederRecord]) {
+    for record in records {
         println!(
             "{} ({}, {:.0} kV, {} nodes)",
-            f.id(),
-            f.header().name,
-            f.header().nominal_kv,
-            f.n_nodes()
+            record.feeder, record.name, record.nominal_kv, record.nodes
         );
-        for (s, sc) in map.scenarios.iter().enumerate() {
-            let summary = summarise(map, s);
-            let (low, median, high) = summary.hosting.unwrap_or((0.0, 0.0, 0.0));
+        for sc in &record.scenarios {
             println!(
                 "  {:<12} capacity kW: lowest {:>8.0}  median {:>8.0}  highest {:>8.0}   binds: {}{}",
                 sc.scenario,
-                low,
-                median,
-                high,
-                limit_counts(&summary.by_limit),
-                if summary.baseline > 0 {
+                sc.hosting_kw_min.unwrap_or(0.0),
+                sc.hosting_kw_median.unwrap_or(0.0),
+                sc.hosting_kw_max.unwrap_or(0.0),
+                limit_counts(&sc.by_limit()),
+                if sc.baseline_violations > 0 {
                     format!(
                         "; {} baseline violation(s) present without new generation",
-                        summary.baseline
+                        sc.baseline_violations
                     )
                 } else {
                     String::new()
@@ -100,10 +534,6 @@ pub fn run(args: &MapArgs) -> Result<(), Failure> {
             );
         }
     }
-    println!("{}", stats_line(&stats, seconds));
-    println!("Results in {}", args.out.display());
-    println!("{CAUTION}");
-    Ok(())
 }
 
 /// Settings stored in every table's metadata, so a file tells how it was made.
@@ -114,15 +544,14 @@ pub fn run_metadata(study: &Study, options: &CapacityOptions) -> Vec<(&'static s
         (
             "headroom_search",
             format!(
-                "{:?}{}",
-                options.method,
+                "{}{}",
+                search_text(options),
                 if options.criteria_detail {
                     " with per-criterion capacities"
                 } else {
                     ""
                 }
-            )
-            .to_lowercase(),
+            ),
         ),
         ("headroom_caution", CAUTION.to_string()),
     ]
@@ -166,35 +595,34 @@ fn study_text(study: &Study) -> String {
     )
 }
 
-fn run_json(
+/// The manifest: what the run was, with which settings, which files and which feeders.
+fn manifest_json(
     input: &str,
     study: &Study,
     options: &CapacityOptions,
-    maps: &[FeederMap<'_>],
+    settings: &Settings,
+    shard: Option<&(Shard, ShardSource)>,
+    files: &[String],
+    records: &[FeederRecord],
 ) -> String {
-    let feeders: Vec<serde_json::Value> = maps
-        .iter()
-        .map(|m| {
-            serde_json::json!({
-                "feeder": m.feeder.id(),
-                "name": m.feeder.header().name,
-                "substation": m.feeder.header().substation,
-                "region": m.feeder.header().region,
-                "nominal_kv": m.feeder.header().nominal_kv,
-                "crs": m.feeder.header().crs,
-                "nodes": m.feeder.n_nodes(),
-            })
-        })
-        .collect();
     let value = serde_json::json!({
         "tool": "headroom",
         "version": env!("CARGO_PKG_VERSION"),
+        "state": "complete",
         "input": input,
         "study": study_text(study),
         "scenarios": study.scenarios.iter().map(|s| s.name.clone()).collect::<Vec<_>>(),
-        "search": format!("{:?}", options.method).to_lowercase(),
+        "search": search_text(options),
         "criteria_detail": options.criteria_detail,
-        "feeders": feeders,
+        "shard": shard.map(|(shard, source)| serde_json::json!({
+            "index": shard.index(),
+            "count": shard.count(),
+            "source": source.to_string(),
+            "rule": "FNV-1a 64 of the feeder id, modulo count, plus 1",
+        })),
+        "settings": settings,
+        "files": files,
+        "feeders": records,
         "caution": CAUTION,
     });
     serde_json::to_string_pretty(&value).unwrap_or_default() + "\n"

@@ -7,9 +7,11 @@ mod cmd_map;
 mod cmd_report;
 mod cmd_synth;
 mod cmd_validate;
+mod merge;
 mod output;
 mod progress;
 mod tables;
+mod workdir;
 
 use std::process::ExitCode;
 

@@ -53,12 +53,17 @@ pub fn write_table(dir: &Path, name: &str, table: &Table) -> Result<PathBuf, Fai
     Ok(path)
 }
 
-/// Writes a text file atomically (temporary name in the same folder, then rename).
+/// Writes a text file atomically (temporary name in the same folder, synced, then renamed).
 pub fn write_text(path: &Path, text: &str) -> Result<(), Failure> {
     let dir = path.parent().unwrap_or(Path::new("."));
     let name = path.file_name().and_then(|n| n.to_str()).unwrap_or("out");
     let tmp = dir.join(format!(".{name}.tmp-{}", std::process::id()));
-    std::fs::write(&tmp, text)
+    let write = || -> std::io::Result<()> {
+        let mut file = std::fs::File::create(&tmp)?;
+        std::io::Write::write_all(&mut file, text.as_bytes())?;
+        file.sync_all()
+    };
+    write()
         .and_then(|()| std::fs::rename(&tmp, path))
         .map_err(|e| {
             let _ = std::fs::remove_file(&tmp);

@@ -49,56 +49,67 @@ pub struct CrsGroup {
     pub feeders: Vec<usize>,
 }
 
-/// Resolves every feeder's `crs`; an unsupported code without `--crs-projjson` is an input
-/// error naming the feeder.toml and the value.
-pub fn crs_groups(feeders: &[Feeder], projjson: Option<&Path>) -> Result<Vec<CrsGroup>, Failure> {
-    let custom = match projjson {
-        Some(path) => Some(Crs::from_projjson_file(path).map_err(|e| {
+/// Reads the `--crs-projjson` file, if any; a bad file is an input error naming it.
+pub fn custom_crs(projjson: Option<&Path>) -> Result<Option<Crs>, Failure> {
+    match projjson {
+        Some(path) => Ok(Some(Crs::from_projjson_file(path).map_err(|e| {
             Failure::Invalid(format!(
                 "error: {}: {e}\nnothing was written.",
                 path.display()
             ))
-        })?),
-        None => None,
+        })?)),
+        None => Ok(None),
+    }
+}
+
+/// One feeder's CRS and the key of its output group (`nocrs`, or the code's letters and digits
+/// in lower case, e.g. `epsg32630`). An unsupported code without `custom` is an input error
+/// naming the feeder.toml and the value.
+pub fn feeder_crs(feeder: &Feeder, custom: Option<&Crs>) -> Result<(String, Crs), Diagnostic> {
+    let code = feeder.header().crs.as_deref();
+    let crs = match Crs::from_optional_code(code) {
+        Ok(crs) => crs,
+        Err(e) => match custom {
+            Some(crs) => crs.clone(),
+            None => {
+                return Err(Diagnostic::error(
+                    feeder.folder().join("feeder.toml"),
+                    format!("{e}; or give the CRS as a PROJJSON file with --crs-projjson"),
+                )
+                .at_column("crs")
+                .with_value(code.unwrap_or_default()));
+            }
+        },
     };
+    let key = match code {
+        None => "nocrs".to_string(),
+        Some(code) => code
+            .chars()
+            .filter(|c| c.is_ascii_alphanumeric())
+            .collect::<String>()
+            .to_ascii_lowercase(),
+    };
+    Ok((key, crs))
+}
+
+/// Resolves every feeder's `crs` (see [`feeder_crs`]), reporting every bad one.
+pub fn crs_groups(feeders: &[Feeder], projjson: Option<&Path>) -> Result<Vec<CrsGroup>, Failure> {
+    let custom = custom_crs(projjson)?;
     let mut errors = Vec::new();
     let mut groups: BTreeMap<String, CrsGroup> = BTreeMap::new();
     for (i, feeder) in feeders.iter().enumerate() {
-        let code = feeder.header().crs.as_deref();
-        let crs = match Crs::from_optional_code(code) {
-            Ok(crs) => crs,
-            Err(e) => match &custom {
-                Some(crs) => crs.clone(),
-                None => {
-                    errors.push(
-                        Diagnostic::error(
-                            feeder.folder().join("feeder.toml"),
-                            format!("{e}; or give the CRS as a PROJJSON file with --crs-projjson"),
-                        )
-                        .at_column("crs")
-                        .with_value(code.unwrap_or_default()),
-                    );
-                    continue;
-                }
-            },
-        };
-        let key = match code {
-            None => "nocrs".to_string(),
-            Some(code) => code
-                .chars()
-                .filter(|c| c.is_ascii_alphanumeric())
-                .collect::<String>()
-                .to_ascii_lowercase(),
-        };
-        groups
-            .entry(key.clone())
-            .or_insert_with(|| CrsGroup {
-                crs,
-                suffix: format!("-{key}"),
-                feeders: Vec::new(),
-            })
-            .feeders
-            .push(i);
+        match feeder_crs(feeder, custom.as_ref()) {
+            Ok((key, crs)) => groups
+                .entry(key.clone())
+                .or_insert_with(|| CrsGroup {
+                    crs,
+                    suffix: format!("-{key}"),
+                    feeders: Vec::new(),
+                })
+                .feeders
+                .push(i),
+            Err(error) => errors.push(error),
+        }
     }
     if !errors.is_empty() {
         return Err(ModelErrors { errors }.into());
