@@ -7,4 +7,5 @@ mod properties;
 mod reference;
 mod report;
 mod scale;
+mod synth;
 mod validation;

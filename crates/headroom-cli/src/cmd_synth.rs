@@ -23,6 +23,10 @@ pub fn run(args: &SynthArgs) -> Result<(), Failure> {
         None => {
             let feeder = generate(&settings);
             feeder.write(&args.out).map_err(write_error)?;
+            // A lone feeder carries its own conductor library, so the folder reads on its own.
+            feeder
+                .write_conductors(&args.out.join("conductors.csv"))
+                .map_err(write_error)?;
             println!(
                 "wrote {} ({} nodes, {:.0} kV, peak load {:.0} kW, existing generation {:.0} kW)",
                 args.out.display(),
