@@ -127,14 +127,36 @@ pub(crate) fn parse_number(text: &str, range: Range) -> Result<f64, &'static str
 /// The line of a record starting at byte `start`. The reader skips blank lines before a record
 /// and counts its start from before them, so they are stepped over here.
 fn line_at(text: &str, start: u64) -> usize {
-    let bytes = text.as_bytes();
-    let mut at = usize::try_from(start)
-        .unwrap_or(usize::MAX)
-        .min(bytes.len());
-    while at < bytes.len() && (bytes[at] == b'\n' || bytes[at] == b'\r') {
-        at += 1;
+    LineCounter::default().line_at(text, start)
+}
+
+/// Line numbers of increasing byte offsets, counting each newline once (records arrive in file
+/// order, so a whole file costs one pass instead of one pass per row).
+#[derive(Default)]
+struct LineCounter {
+    offset: usize,
+    newlines: usize,
+}
+
+impl LineCounter {
+    fn line_at(&mut self, text: &str, start: u64) -> usize {
+        let bytes = text.as_bytes();
+        let mut at = usize::try_from(start)
+            .unwrap_or(usize::MAX)
+            .min(bytes.len());
+        while at < bytes.len() && (bytes[at] == b'\n' || bytes[at] == b'\r') {
+            at += 1;
+        }
+        if at < self.offset {
+            return line_of(bytes, at);
+        }
+        self.newlines += bytes[self.offset..at]
+            .iter()
+            .filter(|&&b| b == b'\n')
+            .count();
+        self.offset = at;
+        self.newlines + 1
     }
-    line_of(bytes, at)
 }
 
 impl Table {
@@ -180,10 +202,13 @@ impl Table {
             .trim(Trim::All)
             .from_reader(text.as_bytes());
         let mut records = Vec::new();
+        let mut lines = LineCounter::default();
         for result in reader.records() {
             match result {
                 Ok(record) => {
-                    let line = record.position().map_or(0, |p| line_at(&text, p.byte()));
+                    let line = record
+                        .position()
+                        .map_or(0, |p| lines.line_at(&text, p.byte()));
                     let cells: Vec<String> = record.iter().map(|c| c.trim().to_string()).collect();
                     records.push((line, cells));
                 }
