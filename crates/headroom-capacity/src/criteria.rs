@@ -253,25 +253,37 @@ impl Thresholds {
         let (ov2, uv2) = (&self.ov2[..n], &self.uv2[..n]);
         let (ch_hi2, ch_lo2, th2) = (&self.ch_hi2[..n], &self.ch_lo2[..n], &self.th2[..n]);
         let inv_2th = &self.inv_2th[..n];
-        let mut mask = 0u8;
-        // Distances in squared form: |q² − t²| ≈ 2t·|q − t|.
+        // Largest excess over each criterion's threshold (in squared form; > 0 is a violation)
+        // and the smallest distance to any threshold. Plain comparisons rather than f64::max
+        // and min keep the loop branch-free and vectorisable; a NaN candidate (0 · ∞ at the
+        // head) is never taken.
+        let (mut over, mut under, mut change, mut thermal) =
+            (f64::MIN, f64::MIN, f64::MIN, f64::MIN);
         let mut v2_margin = f64::INFINITY;
         let mut i_margin = f64::INFINITY;
         for i in 0..n {
             let v2 = v_re[i] * v_re[i] + v_im[i] * v_im[i];
             let i2 = j_re[i] * j_re[i] + j_im[i] * j_im[i];
-            mask |= (u8::from(v2 > ov2[i]) * OVER)
-                | (u8::from(v2 < uv2[i]) * UNDER)
-                | (u8::from(v2 > ch_hi2[i] || v2 < ch_lo2[i]) * CHANGE)
-                | (u8::from(i > 0 && i2 > th2[i]) * THERMAL);
-            let d = (v2 - ov2[i])
-                .abs()
-                .min((v2 - uv2[i]).abs())
-                .min((v2 - ch_hi2[i]).abs())
-                .min((v2 - ch_lo2[i]).abs());
-            v2_margin = v2_margin.min(d);
-            i_margin = i_margin.min((i2 - th2[i]).abs() * inv_2th[i]);
+            let (a, b) = (v2 - ov2[i], uv2[i] - v2);
+            let (c, d) = (v2 - ch_hi2[i], ch_lo2[i] - v2);
+            let e = i2 - th2[i];
+            over = if a > over { a } else { over };
+            under = if b > under { b } else { under };
+            let cd = if c > d { c } else { d };
+            change = if cd > change { cd } else { change };
+            thermal = if e > thermal { e } else { thermal };
+            let (aa, ba, ca, da) = (a.abs(), b.abs(), c.abs(), d.abs());
+            let ab = if aa < ba { aa } else { ba };
+            let cd_abs = if ca < da { ca } else { da };
+            let near = if ab < cd_abs { ab } else { cd_abs };
+            v2_margin = if near < v2_margin { near } else { v2_margin };
+            let ei = e.abs() * inv_2th[i];
+            i_margin = if ei < i_margin { ei } else { i_margin };
         }
+        let mut mask = (u8::from(over > 0.0) * OVER)
+            | (u8::from(under > 0.0) * UNDER)
+            | (u8::from(change > 0.0) * CHANGE)
+            | (u8::from(thermal > 0.0) * THERMAL);
         // Voltage thresholds are below 1.5 pu: 2t < 3.
         let mut margin = (v2_margin / 3.0).min(i_margin);
         if self.head_p_min_pu > f64::NEG_INFINITY {
@@ -394,43 +406,48 @@ pub(crate) fn predict_crossing_pu(
     (p_b, b): (f64, &Snapshot),
 ) -> f64 {
     let dp = p_b - p_a;
-    // Where the line through (p_a, q_a) and (p_b, q_b) reaches the threshold, if it rises.
-    let cross = |q_a: f64, q_b: f64, threshold: f64| {
-        let slope = (q_b - q_a) / dp;
-        if slope > 0.0 {
-            p_a + (threshold - q_a) / slope
-        } else {
-            f64::INFINITY
-        }
+    // Fraction of the way from a to b (beyond b when > 1) at which the line through
+    // (p_a, q_a) and (p_b, q_b) reaches the threshold, for rising quantities; written
+    // branch-free so the loops vectorise.
+    let fraction = |q_a: f64, q_b: f64, threshold: f64| {
+        let rise = q_b - q_a;
+        let f = (threshold - q_a) / rise;
+        if rise > 0.0 { f } else { f64::INFINITY }
     };
+    let pick = |best: f64, f: f64| if f < best { f } else { best };
     let n = a.v_pu.len();
     let (va, vb) = (&a.v_pu[..n], &b.v_pu[..n]);
     let mut best = f64::INFINITY;
     if subset & OVER != 0 {
+        let ov = &thresholds.ov[..n];
         for i in 0..n {
-            best = best.min(cross(va[i], vb[i], thresholds.ov[i]));
+            best = pick(best, fraction(va[i], vb[i], ov[i]));
         }
     }
     if subset & UNDER != 0 {
+        let uv = &thresholds.uv[..n];
         for i in 0..n {
-            best = best.min(cross(-va[i], -vb[i], -thresholds.uv[i]));
+            best = pick(best, fraction(-va[i], -vb[i], -uv[i]));
         }
     }
     if subset & THERMAL != 0 {
-        let (ia, ib) = (&a.i_pu[..n], &b.i_pu[..n]);
+        let (ia, ib, th) = (&a.i_pu[..n], &b.i_pu[..n], &thresholds.th[..n]);
         for i in 1..n {
-            best = best.min(cross(ia[i], ib[i], thresholds.th[i]));
+            best = pick(best, fraction(ia[i], ib[i], th[i]));
         }
     }
     if subset & CHANGE != 0 && thresholds.change_pu.is_finite() {
         let v0 = &base.v_pu[..n];
         for i in 0..n {
             let (ca, cb) = ((va[i] - v0[i]).abs(), (vb[i] - v0[i]).abs());
-            best = best.min(cross(ca, cb, thresholds.change_pu));
+            best = pick(best, fraction(ca, cb, thresholds.change_pu));
         }
     }
     if subset & REVERSE != 0 && thresholds.head_p_min_pu > f64::NEG_INFINITY {
-        best = best.min(cross(-a.head_p_pu, -b.head_p_pu, -thresholds.head_p_min_pu));
+        best = pick(
+            best,
+            fraction(-a.head_p_pu, -b.head_p_pu, -thresholds.head_p_min_pu),
+        );
     }
-    best
+    p_a + best * dp
 }
