@@ -1,5 +1,6 @@
 //! End-to-end tests: one module per area.
 
+mod check;
 mod command;
 mod demo_region;
 mod determinism;

@@ -28,12 +28,18 @@
 //! assert_eq!(answer.limit, Limit::VoltageChange);
 //! ```
 //!
+//! Screening applications builds on the same prepared study: [`check_application`] answers one
+//! request at one node (verdict per scenario, capacity left, what binds, the network with and
+//! without the plant, what-ifs for a refusal), [`run_queue`] decides a queue in order and
+//! [`parse_queue`] reads a queue file's bytes (see docs/check.md).
+//!
 //! This crate reads no files and writes none; it is the only one that uses threads.
 #![deny(missing_docs)]
 
 mod criteria;
 mod prepare;
 mod run;
+mod screen;
 mod search;
 mod shard;
 mod stream;
@@ -41,6 +47,13 @@ mod stream;
 pub use criteria::{Element, Limit, Violation};
 pub use prepare::{BaseBranch, FeederStudy, ScenarioCase};
 pub use run::{FeederMap, RunStats, ScenarioMap, map_feeder, map_feeders};
+pub use screen::{
+    Application, ApplicationDate, Assessment, BranchUpgrade, CheckOptions, CheckReport, Decision,
+    ExportLimit, HEAD_VOLTAGE_MAX_CHANGE_PU, HEAD_VOLTAGE_STEP_PU, HeadVoltageWhatIf, NetworkState,
+    ParsedQueue, PowerFactorWhatIf, QUEUE_COLUMNS, QueueOutcome, QueuedApplication, Reinforcement,
+    RequestBreach, ScenarioCheck, Verdict, WHAT_IF_NOTE, WHAT_IF_POWER_FACTORS, WhatIfs,
+    check_application, parse_queue, run_queue,
+};
 pub use search::{CapacityOptions, NodeCapacity, SearchMethod};
 pub use shard::{
     MAX_SHARDS, SHARD_COUNT_VARIABLE, Shard, ShardError, ShardSource, fnv1a_64,

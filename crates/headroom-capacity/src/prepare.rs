@@ -67,8 +67,10 @@ impl<'f> FeederStudy<'f> {
     }
 
     /// As [`FeederStudy::prepare`], with solver settings and extra permanent generation
-    /// (`(node, kW, kvar injected)`, for example accepted applications) added to every scenario
-    /// at full output.
+    /// (`(node, kW, kvar injected)` at rated output, for example accepted applications). The
+    /// extra generation is generation like any other: each scenario scales it by its
+    /// `gen_scale`, as it scales the feeder's own `gen_kw` and `gen_kvar` (with the default
+    /// scenarios, full output at `min-load` and none at `peak-load`).
     pub fn prepare_with(
         feeder: &'f Feeder,
         study: &Study,
@@ -76,6 +78,51 @@ impl<'f> FeederStudy<'f> {
         extra_generation: &[(BusIdx, f64, f64)],
     ) -> FeederStudy<'f> {
         let network = Network::new(feeder);
+        let demands = study
+            .scenarios
+            .iter()
+            .map(|scenario| {
+                let mut demand =
+                    Demand::from_feeder(feeder, &network, scenario.load_scale, scenario.gen_scale);
+                for &(bus, p_kw, q_kvar) in extra_generation {
+                    let scale = scenario.gen_scale;
+                    demand.add_generation(
+                        bus,
+                        network.kw_to_pu(p_kw * scale),
+                        network.kw_to_pu(q_kvar * scale),
+                    );
+                }
+                demand
+            })
+            .collect();
+        FeederStudy::from_demands(feeder, network, study, solve_settings, demands)
+    }
+
+    /// The same study with the head held at `head_v_pu` instead of the feeder's own setting (a
+    /// what-if tap change at the substation): every scenario's base case is solved again, from
+    /// a flat start, on the same demand (extra generation included).
+    pub fn with_head_voltage(&self, head_v_pu: f64) -> FeederStudy<'f> {
+        let network = self.network.clone().with_head_v_pu(head_v_pu);
+        let demands = self.cases.iter().map(|c| c.demand.clone()).collect();
+        FeederStudy::from_demands(
+            self.feeder,
+            network,
+            &self.study,
+            self.solve_settings,
+            demands,
+        )
+    }
+
+    /// Path impedances, and every scenario's base case, snapshot and thresholds, from one
+    /// demand per scenario of `study` (in its order).
+    fn from_demands(
+        feeder: &'f Feeder,
+        network: Network,
+        study: &Study,
+        solve_settings: SolveSettings,
+        demands: Vec<Demand>,
+    ) -> FeederStudy<'f> {
+        debug_assert_eq!(demands.len(), study.scenarios.len());
         let n = feeder.n_nodes();
         let parents = network.parents();
         let mut path_r_pu = vec![0.0; n];
@@ -88,12 +135,8 @@ impl<'f> FeederStudy<'f> {
         let cases = study
             .scenarios
             .iter()
-            .map(|scenario| {
-                let mut demand =
-                    Demand::from_feeder(feeder, &network, scenario.load_scale, scenario.gen_scale);
-                for &(bus, p_kw, q_kvar) in extra_generation {
-                    demand.add_generation(bus, network.kw_to_pu(p_kw), network.kw_to_pu(q_kvar));
-                }
+            .zip(demands)
+            .map(|(scenario, demand)| {
                 let mut base = FlowState::flat(&network);
                 let base_result = solve(&network, &demand, &[], &mut base, &solve_settings);
                 let snapshot = Snapshot::capture(&network, &base);

@@ -29,6 +29,9 @@ pub enum Command {
     Map(MapArgs),
     /// Write a seeded synthetic feeder (or a region of them) in the feeder format.
     Synth(SynthArgs),
+    /// Screen an application to connect new generation at one node (accept or refuse, per
+    /// scenario, with what-ifs for a refusal), or decide a queue of them in order.
+    Check(CheckArgs),
     /// One self-contained HTML report (maps, charts, tables) from the folder of a map run.
     Report(ReportArgs),
 }
@@ -159,4 +162,69 @@ pub struct ReportArgs {
         value_parser = crate::cmd_report::parse_threshold_kw
     )]
     pub below_kw: Vec<f64>,
+}
+
+#[derive(Debug, Args)]
+#[command(group(clap::ArgGroup::new("what").required(true).args(["node", "queue"])))]
+pub struct CheckArgs {
+    /// A feeder folder, or a folder of feeder folders.
+    pub feeder: PathBuf,
+    /// Node where the plant would connect (its id in nodes.csv).
+    #[arg(long, value_name = "ID", requires = "kw")]
+    pub node: Option<String>,
+    /// Requested export at rated output, kW (> 0).
+    #[arg(long, value_name = "KW", requires = "node", value_parser = parse_check_kw,
+          allow_negative_numbers = true)]
+    pub kw: Option<f64>,
+    /// With a folder of feeders: the feeder of --node, when several feeders have that node id.
+    #[arg(long, value_name = "ID", requires = "node")]
+    pub feeder_id: Option<String>,
+    /// Power factor of the plant, in (0, 1]; default: the study's [generation] power_factor.
+    /// With --queue, the default for rows that leave it empty.
+    #[arg(long, value_name = "PF", value_parser = parse_power_factor,
+          allow_negative_numbers = true)]
+    pub power_factor: Option<f64>,
+    /// The plant absorbs reactive power (lowers its voltage rise); default: the study's.
+    #[arg(long, conflicts_with = "injecting")]
+    pub absorbing: bool,
+    /// The plant injects reactive power; default: the study's.
+    #[arg(long)]
+    pub injecting: bool,
+    /// Study settings (study.toml); default: the format's defaults.
+    #[arg(long, value_name = "FILE")]
+    pub study: Option<PathBuf>,
+    /// Print one JSON document instead of the report.
+    #[arg(long)]
+    pub json: bool,
+    /// Skip the what-ifs of a refusal (power factor, export limit, reinforcement, head voltage).
+    #[arg(long)]
+    pub no_what_ifs: bool,
+    /// Decide a queue of applications in order instead (CSV: id, node, kw, and optionally
+    /// power_factor, absorbing, date, feeder); each accepted one becomes existing generation
+    /// for the ones after it.
+    #[arg(long, value_name = "FILE", requires = "out", conflicts_with_all = ["node", "kw"])]
+    pub queue: Option<PathBuf>,
+    /// With --queue: folder to write decisions.csv, decisions.parquet and run.json into
+    /// (created if missing).
+    #[arg(long, value_name = "DIR", requires = "queue")]
+    pub out: Option<PathBuf>,
+    /// Worker threads (default: one per core). Results are identical for any number.
+    #[arg(long, value_name = "N", value_parser = clap::value_parser!(u32).range(1..=1024))]
+    pub threads: Option<u32>,
+}
+
+fn parse_check_kw(text: &str) -> Result<f64, String> {
+    match text.trim().parse::<f64>() {
+        Ok(kw) if kw.is_finite() && kw > 0.0 => Ok(kw),
+        Ok(_) => Err("must be a number greater than 0 (the export in kW)".to_string()),
+        Err(_) => Err("not a number: give the export in kW, e.g. 250".to_string()),
+    }
+}
+
+fn parse_power_factor(text: &str) -> Result<f64, String> {
+    match text.trim().parse::<f64>() {
+        Ok(pf) if pf > 0.0 && pf <= 1.0 => Ok(pf),
+        Ok(_) => Err("must be in (0, 1]: 1 is unity, 0.95 a common setting".to_string()),
+        Err(_) => Err("not a number: give a power factor in (0, 1], e.g. 0.95".to_string()),
+    }
 }

@@ -2,6 +2,7 @@
 //! exit codes (0 success, 1 invalid model or settings, 2 bad usage, 3 could not write output).
 
 mod args;
+mod cmd_check;
 mod cmd_flow;
 mod cmd_map;
 mod cmd_report;
@@ -52,6 +53,7 @@ fn main() -> ExitCode {
         Command::Flow(a) => cmd_flow::run(a),
         Command::Map(a) => cmd_map::run(a),
         Command::Synth(a) => cmd_synth::run(a),
+        Command::Check(a) => cmd_check::run(a),
         Command::Report(a) => cmd_report::run(a),
     };
     match result {
