@@ -501,6 +501,26 @@ struct FastAnswer {
 }
 
 impl FeederStudy<'_> {
+    /// Solves one injection of `p_kw` at `bus` in scenario `s` with reactive power
+    /// `p_kw · q_per_p`, as the searches do: the violated criteria (bits; 0 when the load flow
+    /// has no solution), what the criteria see (`None` then), and the load flows used.
+    pub(crate) fn solve_injection(
+        &self,
+        s: usize,
+        bus: BusIdx,
+        p_kw: f64,
+        q_per_p: f64,
+    ) -> (u8, Option<Snapshot>, u32) {
+        let mut eval = Evaluator::new(self, s, bus);
+        eval.q_per_p = q_per_p;
+        let (outcome, snapshot) = eval.point(p_kw);
+        let mask = match outcome {
+            Outcome::Converged(mask) => mask,
+            Outcome::Failed => 0,
+        };
+        (mask, snapshot, eval.load_flows)
+    }
+
     /// The hosting capacity of `bus` in scenario `s` (an index into the study's scenarios).
     ///
     /// # Panics
