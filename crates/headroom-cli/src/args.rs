@@ -88,7 +88,7 @@ pub struct MapArgs {
     #[arg(long, value_enum, default_value_t = SearchArg::Fast)]
     pub search: SearchArg,
     /// Skip the capacity under each criterion alone (hosting_kw_voltage, _thermal, _change,
-    /// _reverse are then empty): about half the load flows.
+    /// _reverse are then empty): about a third of the load flows.
     #[arg(long)]
     pub no_criteria_detail: bool,
     /// PROJJSON file describing the CRS of the coordinates, for a `crs` that is neither
