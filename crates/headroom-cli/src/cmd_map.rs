@@ -9,15 +9,16 @@
 //! `workdir.rs` for the layout and the rules).
 
 use std::collections::BTreeMap;
+use std::io::Write as _;
 use std::path::{Path, PathBuf};
-use std::sync::Mutex;
 use std::time::Instant;
 
 use rayon::prelude::*;
+use serde::Serialize;
 
 use headroom_capacity::{
-    CapacityOptions, FeederMap, Limit, RunStats, SearchMethod, Shard, ShardSource, StreamJob,
-    fnv1a_64, map_stream, shard_from_environment,
+    CapacityOptions, FeederMap, Limit, RunStats, SearchMethod, Shard, StreamJob, fnv1a_64,
+    map_stream, shard_from_environment,
 };
 use headroom_export::Crs;
 use headroom_model::{
@@ -129,11 +130,7 @@ pub fn run(args: &MapArgs) -> Result<(), Failure> {
     let n_resumed = done.len();
 
     let metadata = run_metadata(&study, &options);
-    let todo: Vec<&FeederEntry> = entries
-        .iter()
-        .filter(|e| !done.contains_key(&e.id))
-        .collect();
-    let records = Mutex::new(done);
+    let todo: Vec<&FeederEntry> = entries.iter().filter(|e| !done.contains(&e.id)).collect();
     let n_scenarios = study.scenarios.len() as u64;
     let answers_todo: u64 = todo.iter().map(|e| e.n_answers * n_scenarios).sum();
     let progress = MapProgress::new(
@@ -160,16 +157,14 @@ pub fn run(args: &MapArgs) -> Result<(), Failure> {
         let record = feeder_record(map, stats, entry);
         let crs = &crs_of_group[&entry.crs_group];
         write_feeder_parts(&layout, map, &record, crs, &metadata)?;
-        records
-            .lock()
-            .unwrap_or_else(|p| p.into_inner())
-            .insert(record.feeder.clone(), record);
         progress.feeder_done();
         Ok(())
     };
     let job = StreamJob {
         n_feeders: todo.len(),
-        feeders_in_flight: pool.current_num_threads().clamp(2, 8),
+        // Two more than the threads: while some feeders are read or written (file syncs wait on
+        // the disk), the others keep every thread busy.
+        feeders_in_flight: (pool.current_num_threads() + 2).min(10),
         study: &study,
         options: &options,
         load: &load,
@@ -179,43 +174,136 @@ pub fn run(args: &MapArgs) -> Result<(), Failure> {
     let result = map_stream(&job, &pool);
     progress.finish();
     result?;
-    let seconds = started.elapsed().as_secs_f64();
 
-    let records: Vec<FeederRecord> = records
-        .into_inner()
-        .unwrap_or_else(|p| p.into_inner())
-        .into_values()
-        .collect();
-    let manifest = manifest_json(
-        &args.path.display().to_string(),
-        &study,
-        &options,
-        &settings,
-        shard_choice.as_ref(),
-        &write_results(&layout, &records)?,
-        &records,
-    );
-    write_text(&layout.manifest(), &manifest)?;
+    // Results, then the manifest, from the parts on disk: one feeder's record in memory at a time.
+    let files = pool.install(|| write_results(&layout, &entries))?;
+    let manifest = Manifest {
+        tool: "headroom",
+        version: env!("CARGO_PKG_VERSION"),
+        state: "complete",
+        input: args.path.display().to_string(),
+        study: study_text(&study),
+        scenarios: study.scenarios.iter().map(|s| s.name.clone()).collect(),
+        search: search_text(&options),
+        criteria_detail: options.criteria_detail,
+        shard: shard_choice.as_ref().map(|(shard, source)| ShardInfo {
+            index: shard.index(),
+            count: shard.count(),
+            source: source.to_string(),
+            rule: "FNV-1a 64 of the feeder id, modulo count, plus 1",
+        }),
+        settings: &settings,
+        files: &files,
+        feeders: RecordsOnDisk {
+            layout: &layout,
+            entries: &entries,
+        },
+        caution: CAUTION,
+    };
+    write_json(&layout.manifest(), &manifest)?;
     sync_dir(&layout.out);
+
+    let mut total = RunStats::default();
+    for entry in &entries {
+        let record = read_record(&layout, &entry.id)?;
+        print_feeder(&record);
+        total.add(&record.run_stats());
+    }
     std::fs::remove_dir_all(layout.work())
         .map_err(|e| Failure::Output(format!("cannot remove {}: {e}", layout.work().display())))?;
     sync_dir(&layout.out);
-
-    print_summary(&records);
-    if records.is_empty() {
+    let seconds = started.elapsed().as_secs_f64();
+    if entries.is_empty() {
         println!("No feeder falls in shard {shard}: nothing to map.");
     }
-    println!("{}", stats_line(&total_stats(&records), seconds));
+    println!("{}", stats_line(&total, seconds));
     if n_resumed > 0 {
         println!(
             "{n_resumed} of these feeder(s) were finished by an earlier run that was stopped; \
              {} mapped now.",
-            records.len() - n_resumed
+            entries.len() - n_resumed
         );
     }
     println!("Results in {}", args.out.display());
     println!("{CAUTION}");
     Ok(())
+}
+
+/// The manifest `runSFX.json` (see workdir.rs), written last.
+#[derive(Serialize)]
+struct Manifest<'a> {
+    tool: &'static str,
+    version: &'static str,
+    state: &'static str,
+    input: String,
+    study: String,
+    scenarios: Vec<String>,
+    search: String,
+    criteria_detail: bool,
+    shard: Option<ShardInfo>,
+    settings: &'a Settings,
+    files: &'a [String],
+    feeders: RecordsOnDisk<'a>,
+    caution: &'static str,
+}
+
+#[derive(Serialize)]
+struct ShardInfo {
+    index: u32,
+    count: u32,
+    source: String,
+    rule: &'static str,
+}
+
+/// The records of the finished feeders, read from their part folders one at a time as the
+/// manifest is written.
+struct RecordsOnDisk<'a> {
+    layout: &'a Layout,
+    entries: &'a [FeederEntry],
+}
+
+impl Serialize for RecordsOnDisk<'_> {
+    fn serialize<S: serde::Serializer>(&self, serializer: S) -> Result<S::Ok, S::Error> {
+        use serde::ser::{Error, SerializeSeq};
+        let mut seq = serializer.serialize_seq(Some(self.entries.len()))?;
+        for entry in self.entries {
+            let record = read_record(self.layout, &entry.id).map_err(|e| match e {
+                Failure::Invalid(m) | Failure::Usage(m) | Failure::Output(m) => S::Error::custom(m),
+            })?;
+            seq.serialize_element(&record)?;
+        }
+        seq.end()
+    }
+}
+
+/// A finished feeder's record, from its part folder.
+fn read_record(layout: &Layout, feeder: &str) -> Result<FeederRecord, Failure> {
+    let path = layout.done_dir().join(feeder).join("summary.json");
+    let text = std::fs::read_to_string(&path)
+        .map_err(|e| Failure::Output(format!("cannot read {}: {e}", path.display())))?;
+    serde_json::from_str(&text)
+        .map_err(|e| Failure::Output(format!("cannot read {}: {e}", path.display())))
+}
+
+/// Writes `value` as pretty JSON to `path`, streamed into a temporary file beside it, synced,
+/// then renamed.
+fn write_json(path: &Path, value: &impl Serialize) -> Result<(), Failure> {
+    let dir = path.parent().unwrap_or(Path::new("."));
+    let name = path.file_name().and_then(|n| n.to_str()).unwrap_or("out");
+    let tmp = dir.join(format!(".{name}.tmp-{}", std::process::id()));
+    let write = || -> Result<(), String> {
+        let file = std::fs::File::create(&tmp).map_err(|e| e.to_string())?;
+        let mut writer = std::io::BufWriter::new(file);
+        serde_json::to_writer_pretty(&mut writer, value).map_err(|e| e.to_string())?;
+        writer.write_all(b"\n").map_err(|e| e.to_string())?;
+        let file = writer.into_inner().map_err(|e| e.to_string())?;
+        file.sync_all().map_err(|e| e.to_string())?;
+        std::fs::rename(&tmp, path).map_err(|e| e.to_string())
+    };
+    write().map_err(|e| {
+        let _ = std::fs::remove_file(&tmp);
+        Failure::Output(format!("cannot write {}: {e}", path.display()))
+    })
 }
 
 /// The feeder id of a folder: its name (as the model reader names feeders).
@@ -463,40 +551,43 @@ fn write_feeder_parts(
 }
 
 /// Concatenates the parts into the result tables (one nodes and branches file per CRS group,
-/// feeders in id order) and returns the file names written.
-fn write_results(layout: &Layout, records: &[FeederRecord]) -> Result<Vec<String>, Failure> {
-    let mut files = Vec::new();
-    if records.is_empty() {
-        return Ok(files);
+/// feeders in id order; the files in parallel, each by one thread) and returns the file names
+/// written.
+fn write_results(layout: &Layout, entries: &[FeederEntry]) -> Result<Vec<String>, Failure> {
+    if entries.is_empty() {
+        return Ok(Vec::new());
     }
-    let mut groups: BTreeMap<&str, Vec<&FeederRecord>> = BTreeMap::new();
-    for record in records {
-        groups.entry(&record.crs_group).or_default().push(record);
+    let mut groups: BTreeMap<&str, Vec<&FeederEntry>> = BTreeMap::new();
+    for entry in entries {
+        groups.entry(&entry.crs_group).or_default().push(entry);
     }
-    let part = |record: &FeederRecord, kind: &str| {
-        Layout::part_file(&layout.done_dir().join(&record.feeder), kind)
-    };
-    let mut write = |kind: &str, suffix: &str, members: &[&FeederRecord]| {
-        let name = layout.table_name(kind, suffix);
-        let parts: Vec<PathBuf> = members.iter().map(|r| part(r, kind)).collect();
-        concat_parts(&parts, &layout.out.join(&name))?;
-        files.push(name);
-        Ok::<(), Failure>(())
-    };
     let several = groups.len() > 1;
+    let all: Vec<&FeederEntry> = entries.iter().collect();
+    // (file name, the parts it is made of), in the order listed in the manifest.
+    let mut files: Vec<(String, Vec<PathBuf>)> = Vec::new();
+    let mut add = |kind: &str, suffix: &str, members: &[&FeederEntry]| {
+        let parts = members
+            .iter()
+            .map(|e| Layout::part_file(&layout.done_dir().join(&e.id), kind))
+            .collect();
+        files.push((layout.table_name(kind, suffix), parts));
+    };
     for (key, members) in &groups {
         let suffix = if several {
             format!("-{key}")
         } else {
             String::new()
         };
-        write(KINDS[0], &suffix, members)?;
-        write(KINDS[1], &suffix, members)?;
+        add(KINDS[0], &suffix, members);
+        add(KINDS[1], &suffix, members);
     }
-    let all: Vec<&FeederRecord> = records.iter().collect();
-    write(KINDS[2], "", &all)?;
-    write(KINDS[3], "", &all)?;
-    Ok(files)
+    add(KINDS[2], "", &all);
+    add(KINDS[3], "", &all);
+    files
+        .par_iter()
+        .map(|(name, parts)| concat_parts(parts, &layout.out.join(name)))
+        .collect::<Result<Vec<()>, Failure>>()?;
+    Ok(files.into_iter().map(|(name, _)| name).collect())
 }
 
 fn total_stats(records: &[FeederRecord]) -> RunStats {
@@ -508,31 +599,36 @@ fn total_stats(records: &[FeederRecord]) -> RunStats {
 }
 
 /// Per feeder and scenario: lowest, median and highest capacity, and what binds.
-#[allow(clippy::print_stdout)]
 fn print_summary(records: &[FeederRecord]) {
     for record in records {
+        print_feeder(record);
+    }
+}
+
+/// One feeder's lines of the summary.
+#[allow(clippy::print_stdout)]
+fn print_feeder(record: &FeederRecord) {
+    println!(
+        "{} ({}, {:.0} kV, {} nodes)",
+        record.feeder, record.name, record.nominal_kv, record.nodes
+    );
+    for sc in &record.scenarios {
         println!(
-            "{} ({}, {:.0} kV, {} nodes)",
-            record.feeder, record.name, record.nominal_kv, record.nodes
+            "  {:<12} capacity kW: lowest {:>8.0}  median {:>8.0}  highest {:>8.0}   binds: {}{}",
+            sc.scenario,
+            sc.hosting_kw_min.unwrap_or(0.0),
+            sc.hosting_kw_median.unwrap_or(0.0),
+            sc.hosting_kw_max.unwrap_or(0.0),
+            limit_counts(&sc.by_limit()),
+            if sc.baseline_violations > 0 {
+                format!(
+                    "; {} baseline violation(s) present without new generation",
+                    sc.baseline_violations
+                )
+            } else {
+                String::new()
+            }
         );
-        for sc in &record.scenarios {
-            println!(
-                "  {:<12} capacity kW: lowest {:>8.0}  median {:>8.0}  highest {:>8.0}   binds: {}{}",
-                sc.scenario,
-                sc.hosting_kw_min.unwrap_or(0.0),
-                sc.hosting_kw_median.unwrap_or(0.0),
-                sc.hosting_kw_max.unwrap_or(0.0),
-                limit_counts(&sc.by_limit()),
-                if sc.baseline_violations > 0 {
-                    format!(
-                        "; {} baseline violation(s) present without new generation",
-                        sc.baseline_violations
-                    )
-                } else {
-                    String::new()
-                }
-            );
-        }
     }
 }
 
@@ -593,37 +689,4 @@ fn study_text(study: &Study) -> String {
         },
         scenarios.join(", ")
     )
-}
-
-/// The manifest: what the run was, with which settings, which files and which feeders.
-fn manifest_json(
-    input: &str,
-    study: &Study,
-    options: &CapacityOptions,
-    settings: &Settings,
-    shard: Option<&(Shard, ShardSource)>,
-    files: &[String],
-    records: &[FeederRecord],
-) -> String {
-    let value = serde_json::json!({
-        "tool": "headroom",
-        "version": env!("CARGO_PKG_VERSION"),
-        "state": "complete",
-        "input": input,
-        "study": study_text(study),
-        "scenarios": study.scenarios.iter().map(|s| s.name.clone()).collect::<Vec<_>>(),
-        "search": search_text(options),
-        "criteria_detail": options.criteria_detail,
-        "shard": shard.map(|(shard, source)| serde_json::json!({
-            "index": shard.index(),
-            "count": shard.count(),
-            "source": source.to_string(),
-            "rule": "FNV-1a 64 of the feeder id, modulo count, plus 1",
-        })),
-        "settings": settings,
-        "files": files,
-        "feeders": records,
-        "caution": CAUTION,
-    });
-    serde_json::to_string_pretty(&value).unwrap_or_default() + "\n"
 }

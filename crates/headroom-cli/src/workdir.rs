@@ -14,7 +14,7 @@
 //!   `staging/`. Part names do not start with `nodes`, so a glob `DIR/**/nodes*.parquet` never
 //!   counts a row twice.
 
-use std::collections::BTreeMap;
+use std::collections::{BTreeMap, BTreeSet};
 use std::path::{Path, PathBuf};
 
 use headroom_capacity::{Limit, RunStats, Shard};
@@ -287,11 +287,9 @@ pub enum Start {
     /// The folder already holds this run, complete, with the same settings and inputs: the
     /// records of its feeders, in id order.
     Complete(Vec<FeederRecord>),
-    /// Map every feeder not in `done` (records by id of the feeders an earlier, interrupted run
-    /// finished with the same settings and inputs).
-    Run {
-        done: BTreeMap<String, FeederRecord>,
-    },
+    /// Map every feeder not in `done` (the ids of the feeders an earlier, interrupted run
+    /// finished with the same settings and inputs; their parts are in `done/`).
+    Run { done: BTreeSet<String> },
 }
 
 /// Looks at what earlier runs left in the output folder and gets it ready (see the module
@@ -414,7 +412,7 @@ pub fn start(
     // Results without a manifest are from a run stopped while writing them: they are rebuilt.
     remove_own_results(layout, &names)?;
 
-    let mut done = BTreeMap::new();
+    let mut done = BTreeSet::new();
     if work.is_dir() {
         match earlier {
             Some(earlier) if earlier.settings == *settings => {
@@ -453,13 +451,10 @@ pub fn start(
 
 /// The finished feeders of an interrupted run that are still wanted with the same input;
 /// the folders of the others are removed.
-fn resume(
-    layout: &Layout,
-    wanted: &[Wanted<'_>],
-) -> Result<BTreeMap<String, FeederRecord>, Failure> {
+fn resume(layout: &Layout, wanted: &[Wanted<'_>]) -> Result<BTreeSet<String>, Failure> {
     let wanted: BTreeMap<&str, &str> = wanted.iter().map(|w| (w.id, w.input_hash)).collect();
     let done_dir = layout.done_dir();
-    let mut done = BTreeMap::new();
+    let mut done = BTreeSet::new();
     let listing = match std::fs::read_dir(&done_dir) {
         Ok(listing) => listing,
         Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(done),
@@ -478,7 +473,7 @@ fn resume(
                     && folder.file_name().is_some_and(|n| *n == *record.feeder)
                     && wanted.get(record.feeder.as_str()) == Some(&record.input_hash.as_str()) =>
             {
-                done.insert(record.feeder.clone(), record);
+                done.insert(record.feeder);
             }
             _ => stale.push(folder),
         }
