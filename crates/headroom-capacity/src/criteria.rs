@@ -48,6 +48,24 @@ impl Limit {
             Limit::SearchMax => "search_max",
         }
     }
+
+    /// A short label for people, e.g. `voltage change on trip`.
+    pub fn label(self) -> &'static str {
+        match self {
+            Limit::Overvoltage => "overvoltage",
+            Limit::Undervoltage => "undervoltage",
+            Limit::Thermal => "thermal",
+            Limit::VoltageChange => "voltage change on trip",
+            Limit::ReverseFlow => "reverse power",
+            Limit::NotConverged => "no convergence",
+            Limit::SearchMax => "search ceiling",
+        }
+    }
+
+    /// The limit named as in output tables (`voltage_change`); `None` for anything else.
+    pub fn parse(name: &str) -> Option<Limit> {
+        Limit::ALL.into_iter().find(|l| l.as_str() == name)
+    }
 }
 
 impl std::fmt::Display for Limit {

@@ -1,71 +1,8 @@
 //! The binding criteria named in the `limit` column, and counts per criterion.
 
-/// The criterion that binds first at a node, as written in the `limit` column of a node table.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
-pub enum Limit {
-    /// Some node voltage above the upper limit.
-    Overvoltage,
-    /// Some node voltage below the lower limit.
-    Undervoltage,
-    /// Some branch current above its rating.
-    Thermal,
-    /// Voltage change when the new generation trips.
-    VoltageChange,
-    /// Active power leaving the feeder at the head.
-    ReverseFlow,
-    /// The load flow did not converge.
-    NotConverged,
-    /// Nothing bound up to the search ceiling `max_kw`.
-    SearchMax,
-}
-
-impl Limit {
-    /// Every criterion, in the order of the output contract.
-    pub const ALL: [Limit; 7] = [
-        Limit::Overvoltage,
-        Limit::Undervoltage,
-        Limit::Thermal,
-        Limit::VoltageChange,
-        Limit::ReverseFlow,
-        Limit::NotConverged,
-        Limit::SearchMax,
-    ];
-
-    /// The name as written in the tables, e.g. `voltage_change`.
-    pub fn as_str(self) -> &'static str {
-        match self {
-            Limit::Overvoltage => "overvoltage",
-            Limit::Undervoltage => "undervoltage",
-            Limit::Thermal => "thermal",
-            Limit::VoltageChange => "voltage_change",
-            Limit::ReverseFlow => "reverse_flow",
-            Limit::NotConverged => "not_converged",
-            Limit::SearchMax => "search_max",
-        }
-    }
-
-    /// A short label for people, e.g. `voltage change on trip`.
-    pub fn label(self) -> &'static str {
-        match self {
-            Limit::Overvoltage => "overvoltage",
-            Limit::Undervoltage => "undervoltage",
-            Limit::Thermal => "thermal",
-            Limit::VoltageChange => "voltage change on trip",
-            Limit::ReverseFlow => "reverse power",
-            Limit::NotConverged => "no convergence",
-            Limit::SearchMax => "search ceiling",
-        }
-    }
-
-    /// Parses the table name; `None` for anything else.
-    pub fn parse(name: &str) -> Option<Limit> {
-        Limit::ALL.into_iter().find(|l| l.as_str() == name)
-    }
-
-    fn index(self) -> usize {
-        self as usize
-    }
-}
+/// The criterion that binds first at a node, as written in the `limit` column of a node table
+/// (the capacity crate's own type, so names and order cannot drift apart).
+pub use headroom_capacity::Limit;
 
 /// Number of nodes per binding criterion.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
@@ -76,7 +13,7 @@ pub struct LimitCounts {
 impl LimitCounts {
     /// Counts one more node bound by `limit`.
     pub fn add(&mut self, limit: Limit) {
-        self.counts[limit.index()] += 1;
+        self.counts[limit as usize] += 1;
     }
 
     /// Adds every count of `other`.
@@ -88,7 +25,7 @@ impl LimitCounts {
 
     /// Nodes bound by `limit`.
     pub fn get(&self, limit: Limit) -> u64 {
-        self.counts[limit.index()]
+        self.counts[limit as usize]
     }
 
     /// Nodes counted in all.
