@@ -113,13 +113,12 @@ pub fn run(args: &MapArgs) -> Result<(), Failure> {
     let done = match crate::workdir::start(&layout, &settings, &wanted, args.fresh)? {
         Start::Complete(records) => {
             print_summary(&records);
-            let total = total_stats(&records);
+            let seconds = started.elapsed().as_secs_f64();
+            println!("{}", stats_line(&total_stats(&records), seconds));
             println!(
-                "{} already holds this run, complete, with the same settings and inputs: nothing \
-                 was mapped again (--fresh maps it again). {} node answers on {} feeder(s).",
-                args.out.display(),
-                total.node_results,
-                total.feeders
+                "{} already held this run, complete, with the same settings and inputs: nothing \
+                 was mapped again (--fresh maps it again).",
+                args.out.display()
             );
             println!("Results in {}", args.out.display());
             println!("{CAUTION}");
