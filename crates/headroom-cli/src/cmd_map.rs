@@ -681,7 +681,10 @@ fn study_text(study: &Study) -> String {
         s.resolution_kw,
         s.max_kw,
         g.power_factor,
-        if g.absorbing {
+        // At unity power factor there is no reactive power to absorb or inject.
+        if g.power_factor >= 1.0 {
+            "(unity)"
+        } else if g.absorbing {
             "absorbing"
         } else {
             "injecting"
