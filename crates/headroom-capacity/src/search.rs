@@ -97,9 +97,11 @@ struct Evaluator<'s, 'f> {
     resolution_kw: f64,
     max_steps: u64,
     work: FlowState,
-    /// The last converged injection's solution, and its injection (pu).
-    last: FlowState,
-    last_p_pu: Option<f64>,
+    /// The solutions of the last few converged injections, and their injections (pu; NaN for
+    /// an empty slot); `newest` indexes the last one.
+    solved: Vec<FlowState>,
+    solved_p_pu: [f64; SOLVED_KEPT],
+    newest: usize,
     /// Series impedance shared by each node's path to the head and the plant's path, pu: the
     /// voltage change at node i from a current I injected at the plant is ≈ Z_common(i)·I.
     common_r_pu: Vec<f64>,
@@ -138,8 +140,9 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             // 20000 / 0.1 landing a hair below an integer).
             max_steps: (search.max_kw / search.resolution_kw + 1e-9).floor() as u64,
             work: case.base.clone(),
-            last: case.base.clone(),
-            last_p_pu: None,
+            solved: Vec::with_capacity(SOLVED_KEPT),
+            solved_p_pu: [f64::NAN; SOLVED_KEPT],
+            newest: 0,
             common_r_pu,
             common_x_pu,
             outcomes: HashMap::new(),
@@ -152,16 +155,48 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         steps as f64 * self.resolution_kw
     }
 
-    /// Solves the injection of `p_kw`; a converged solution is left in `self.last`.
+    /// The last converged injection and its solution.
+    fn last(&self) -> Option<(f64, &FlowState)> {
+        let p_pu = self.solved_p_pu[self.newest];
+        (!p_pu.is_nan()).then(|| (p_pu, &self.solved[self.newest]))
+    }
+
+    /// Solves the injection of `p_kw`; a converged solution is kept as the last one.
     fn solve_at(&mut self, p_kw: f64) -> Outcome {
+        let p_pu = self.study.network.kw_to_pu(p_kw);
+        let from_solved = self.warm_start(p_pu);
+        let mut outcome = self.settle(p_pu);
+        // A start extrapolated from other injections can be poor enough to send the sweep
+        // astray; no solution is declared before a solve from the base case's start fails too.
+        if outcome == Outcome::Failed && from_solved {
+            self.start_from_base(p_pu);
+            outcome = self.settle(p_pu);
+        }
+        self.load_flows += 1;
+        if let Outcome::Converged(_) = outcome {
+            let slot = if self.solved.len() < SOLVED_KEPT {
+                self.solved.push(FlowState::flat(&self.study.network));
+                self.solved.len() - 1
+            } else {
+                (self.newest + 1) % SOLVED_KEPT
+            };
+            std::mem::swap(&mut self.work, &mut self.solved[slot]);
+            self.solved_p_pu[slot] = p_pu;
+            self.newest = slot;
+        }
+        self.outcomes.insert(p_kw.to_bits(), outcome);
+        outcome
+    }
+
+    /// Solves the injection of `p_pu` from the start in `self.work` until its verdict is
+    /// settled.
+    fn settle(&mut self, p_pu: f64) -> Outcome {
         let network = &self.study.network;
-        let p_pu = network.kw_to_pu(p_kw);
         let injection = [Injection {
             bus: self.bus,
             p_pu,
             q_pu: p_pu * self.q_per_p,
         }];
-        self.warm_start(p_pu);
         let settings = &self.study.solve_settings;
         let demand = &self.case.demand;
         let thresholds = &self.case.thresholds;
@@ -199,37 +234,97 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                 }
             }
         }
-        self.load_flows += 1;
-        if let Outcome::Converged(_) = outcome {
-            std::mem::swap(&mut self.work, &mut self.last);
-            self.last_p_pu = Some(p_pu);
-        }
-        self.outcomes.insert(p_kw.to_bits(), outcome);
         outcome
     }
 
-    /// Starts from the nearest solved injection (the base case or the last converged one) plus
-    /// the linear voltage change of the difference: the injected current through the path
-    /// impedance the plant shares with each node (superposition).
-    fn warm_start(&mut self, p_pu: f64) {
-        let (anchor, anchor_p_pu) = match self.last_p_pu {
-            Some(last_p) if (p_pu - last_p).abs() < p_pu.abs() => (&self.last, last_p),
-            _ => (&self.case.base, 0.0),
-        };
+    /// Starts from the solved injections nearest to `p_pu` (the base case counts as solved at
+    /// 0): the parabola through the three nearest, or the line through two where a parabola
+    /// would be extrapolated beyond the span of its nodes — unless the base case is one of
+    /// the other two, the nearest two and the base case then (the curve's slope where it was
+    /// last solved, bent through the base case). With only the base case solved, see
+    /// [`Evaluator::start_from_base`]. Returns whether other solved injections were used.
+    fn warm_start(&mut self, p_pu: f64) -> bool {
+        let mut near = [(f64::NAN, &self.case.base); SOLVED_KEPT + 1];
+        near[0] = (0.0, &self.case.base);
+        for (slot, state) in self.solved.iter().enumerate() {
+            near[slot + 1] = (self.solved_p_pu[slot], state);
+        }
+        // Nearest first, empty slots last; an injection solved twice counts once.
+        near.sort_by(|a, b| distance(a.0, p_pu).total_cmp(&distance(b.0, p_pu)));
+        let mut picked = [near[0]; 3];
+        let mut count = 0;
+        for &(q, state) in &near {
+            if count < 3 && q.is_finite() && picked[..count].iter().all(|(o, _)| *o != q) {
+                picked[count] = (q, state);
+                count += 1;
+            }
+        }
+        if count < 2 {
+            self.start_from_base(p_pu);
+            return false;
+        }
+        if count == 3 {
+            let (lowest, highest) = picked
+                .iter()
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), (q, _)| {
+                    (l.min(*q), h.max(*q))
+                });
+            if (p_pu - picked[0].0).abs() > highest - lowest {
+                if picked[0].0 != 0.0 && picked[1].0 != 0.0 {
+                    picked[2] = (0.0, &self.case.base);
+                } else {
+                    count = 2;
+                }
+            }
+        }
+        // Lagrange weights of the nodes picked.
+        let mut w = [0.0; 3];
+        for (j, wj) in w.iter_mut().enumerate().take(count) {
+            *wj = (0..count)
+                .filter(|&m| m != j)
+                .map(|m| (p_pu - picked[m].0) / (picked[j].0 - picked[m].0))
+                .product();
+        }
+        let states = picked.map(|(_, state)| (state.v_re(), state.v_im()));
+        self.work.set_voltages(|i| {
+            let (mut re, mut im) = (0.0, 0.0);
+            for j in 0..count {
+                re += w[j] * states[j].0[i];
+                im += w[j] * states[j].1[i];
+            }
+            (re, im)
+        });
+        true
+    }
+
+    /// Starts from the base case plus the linear voltage change of the plant's current through
+    /// the path impedance it shares with each node (superposition); the current is taken at
+    /// the plant's own voltage on the two-bus model of its path (a few fixed-point steps from
+    /// the base voltage).
+    fn start_from_base(&mut self, p_pu: f64) {
         let base = &self.case.base;
         let k = self.bus.index();
-        let (vr, vi) = (base.v_re()[k], base.v_im()[k]);
-        let inv = 1.0 / (vr * vr + vi * vi);
-        // Injected current conj(S / V) at the plant for S = Δp·(1 + j·q_per_p).
-        let (dp, dq) = (p_pu - anchor_p_pu, (p_pu - anchor_p_pu) * self.q_per_p);
-        let (ir, ii) = ((dp * vr + dq * vi) * inv, (dp * vi - dq * vr) * inv);
+        let (v0r, v0i) = (base.v_re()[k], base.v_im()[k]);
+        let (zr, zx) = (self.common_r_pu[k], self.common_x_pu[k]);
+        let (p, q) = (p_pu, p_pu * self.q_per_p);
+        // conj(S / V) for S = p + jq.
+        let current = |vr: f64, vi: f64| {
+            let inv = 1.0 / (vr * vr + vi * vi);
+            ((p * vr + q * vi) * inv, (p * vi - q * vr) * inv)
+        };
+        let (mut ir, mut ii) = current(v0r, v0i);
+        for _ in 0..3 {
+            let (nr, ni) = current(v0r + zr * ir - zx * ii, v0i + zr * ii + zx * ir);
+            if !(nr.is_finite() && ni.is_finite()) {
+                break;
+            }
+            (ir, ii) = (nr, ni);
+        }
         let (common_r, common_x) = (&self.common_r_pu, &self.common_x_pu);
+        let (br, bi) = (base.v_re(), base.v_im());
         self.work.set_voltages(|i| {
             let (r, x) = (common_r[i], common_x[i]);
-            (
-                anchor.v_re()[i] + r * ir - x * ii,
-                anchor.v_im()[i] + r * ii + x * ir,
-            )
+            (br[i] + r * ir - x * ii, bi[i] + r * ii + x * ir)
         });
     }
 
@@ -245,7 +340,10 @@ impl<'s, 'f> Evaluator<'s, 'f> {
     fn point(&mut self, p_kw: f64) -> (Outcome, Option<Snapshot>) {
         let outcome = self.solve_at(p_kw);
         let snapshot = match outcome {
-            Outcome::Converged(_) => Some(Snapshot::capture(&self.study.network, &self.last)),
+            Outcome::Converged(_) => {
+                let (_, state) = self.last().expect("a converged injection is kept");
+                Some(Snapshot::capture(&self.study.network, state))
+            }
             Outcome::Failed => None,
         };
         (outcome, snapshot)
@@ -347,10 +445,11 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                 // Extrapolate from the last two passes, and from the model anchored at the pass.
                 (_, Some((b, b_snap))) => {
                     let secant = self.predict(subset, (*b, b_snap), (lo, &lo_snap));
-                    if self.last_p_pu == Some(lo_pu) {
-                        secant.min(self.model_estimate_pu(subset, lo_pu, &self.last))
-                    } else {
-                        secant
+                    match self.last() {
+                        Some((p_pu, state)) if p_pu == lo_pu => {
+                            secant.min(self.model_estimate_pu(subset, lo_pu, state))
+                        }
+                        _ => secant,
                     }
                 }
                 (_, None) => self.model_estimate_pu(subset, 0.0, &self.case.base),
@@ -451,6 +550,15 @@ const SETTLED_MARGIN_PU: f64 = 1e-4;
 /// threshold, pu. Solutions reached from different starting points agree far closer than that
 /// margin, so verdicts do not depend on the search path.
 const TIGHT_TOL_PU: f64 = 1e-12;
+
+/// Converged injections kept for warm starts.
+const SOLVED_KEPT: usize = 4;
+
+/// Distance between two injections, NaN (an empty slot) farthest.
+fn distance(a: f64, b: f64) -> f64 {
+    let d = (a - b).abs();
+    if d.is_nan() { f64::INFINITY } else { d }
+}
 
 /// Predicted evaluations allowed once the answer is bracketed, before bisecting.
 const MAX_PREDICTED_IN_BRACKET: u32 = 4;
