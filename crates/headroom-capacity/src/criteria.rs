@@ -141,18 +141,18 @@ pub(crate) struct Snapshot {
 }
 
 impl Snapshot {
-    pub fn capture(network: &Network, state: &FlowState) -> Snapshot {
+    pub fn capture(state: &FlowState) -> Snapshot {
         let n = state.n_nodes();
         let mut snapshot = Snapshot {
             v_pu: vec![0.0; n],
             i_pu: vec![0.0; n],
             head_p_pu: 0.0,
         };
-        snapshot.refill(network, state);
+        snapshot.refill(state);
         snapshot
     }
 
-    pub fn refill(&mut self, network: &Network, state: &FlowState) {
+    pub fn refill(&mut self, state: &FlowState) {
         let n = state.n_nodes();
         let (v_re, v_im) = (state.v_re(), state.v_im());
         let (j_re, j_im) = (state.j_re(), state.j_im());
@@ -163,25 +163,17 @@ impl Snapshot {
             self.i_pu[i] = (j_re[i] * j_re[i] + j_im[i] * j_im[i]).sqrt();
         }
         self.i_pu[0] = 0.0;
-        self.head_p_pu = head_p_pu(network, state);
+        self.head_p_pu = head_p_pu(state);
     }
 }
 
-/// Active power from the head node into its branches, pu.
-pub(crate) fn head_p_pu(network: &Network, state: &FlowState) -> f64 {
-    let (v0r, v0i) = (state.v_re()[0], state.v_im()[0]);
-    let parents = network.parents();
-    let (mut jr, mut ji) = (0.0, 0.0);
-    for (i, &up) in parents.iter().enumerate().skip(1) {
-        if up == 0 {
-            jr += state.j_re()[i];
-            ji += state.j_im()[i];
-        }
-    }
-    v0r * jr + v0i * ji
+/// Active power from the head node into its branches, pu (the solve leaves the current
+/// they draw in the head's slot).
+pub(crate) fn head_p_pu(state: &FlowState) -> f64 {
+    state.v_re()[0] * state.j_re()[0] + state.v_im()[0] * state.j_im()[0]
 }
 
-/// Per-element thresholds of one scenario, in per unit, linear and squared.
+/// Per-element thresholds of one scenario, in per unit.
 #[derive(Debug, Clone)]
 pub(crate) struct Thresholds {
     /// Overvoltage when |V| > ov.
@@ -194,14 +186,96 @@ pub(crate) struct Thresholds {
     pub th: Vec<f64>,
     /// Reverse flow when head P < this (−∞ when allowed).
     pub head_p_min_pu: f64,
-    // Squared forms for the violation scan (no square roots in it).
-    ov2: Vec<f64>,
-    uv2: Vec<f64>,
-    ch_hi2: Vec<f64>,
-    ch_lo2: Vec<f64>,
-    th2: Vec<f64>,
-    /// 1 / (2·th), turning a squared-current distance into a current distance (0 at the head).
-    inv_2th: Vec<f64>,
+    /// Node voltages without the plant, pu: with the limits below, the voltage scan derives
+    /// every voltage threshold from this one array.
+    v0: Vec<f64>,
+    v_max_pu: f64,
+    v_min_pu: f64,
+}
+
+/// Nodes judged together by [`Thresholds::judge`].
+const LANES: usize = 4;
+
+/// Running results of [`Thresholds::judge`], one accumulator per lane: a max or min reduction
+/// is not reordered by the compiler, so separate lanes are what lets it use vector registers.
+struct Scan {
+    v_max: f64,
+    v_min: f64,
+    change: f64,
+    /// Largest excess over each criterion's threshold (> 0 is a violation).
+    over: [f64; LANES],
+    under: [f64; LANES],
+    moved: [f64; LANES],
+    thermal: [f64; LANES],
+    /// Smallest distance of any quantity to its threshold.
+    margin: [f64; LANES],
+}
+
+impl Scan {
+    fn new(v_max: f64, v_min: f64, change: f64) -> Scan {
+        Scan {
+            v_max,
+            v_min,
+            change,
+            over: [f64::MIN; LANES],
+            under: [f64::MIN; LANES],
+            moved: [f64::MIN; LANES],
+            thermal: [f64::MIN; LANES],
+            margin: [f64::INFINITY; LANES],
+        }
+    }
+
+    /// Judges `LANES` nodes from their voltages `[re, im]`, feeding-branch currents, base
+    /// voltages and thermal thresholds; returns their voltage and current magnitudes. Plain
+    /// comparisons rather than f64::max and min keep it branch-free. At the head the thermal
+    /// threshold is infinite: its excess is −∞ and its distance +∞, never taken.
+    #[inline(always)]
+    fn visit(
+        &mut self,
+        [vr, vi]: [[f64; LANES]; 2],
+        [jr, ji]: [[f64; LANES]; 2],
+        base: [f64; LANES],
+        rating: [f64; LANES],
+    ) -> ([f64; LANES], [f64; LANES]) {
+        let mut v = [0.0; LANES];
+        let mut current = [0.0; LANES];
+        for l in 0..LANES {
+            v[l] = (vr[l] * vr[l] + vi[l] * vi[l]).sqrt();
+            current[l] = (jr[l] * jr[l] + ji[l] * ji[l]).sqrt();
+            let hi = base[l] + WORSE_EPS_PU;
+            let lo = base[l] - WORSE_EPS_PU;
+            let ov = if self.v_max > hi { self.v_max } else { hi };
+            let uv = if self.v_min < lo { self.v_min } else { lo };
+            let (a, b) = (v[l] - ov, uv - v[l]);
+            let d = v[l] - base[l];
+            let (c, c_neg) = (d - self.change, -d - self.change);
+            let e = current[l] - rating[l];
+            self.over[l] = if a > self.over[l] { a } else { self.over[l] };
+            self.under[l] = if b > self.under[l] { b } else { self.under[l] };
+            let cc = if c > c_neg { c } else { c_neg };
+            self.moved[l] = if cc > self.moved[l] {
+                cc
+            } else {
+                self.moved[l]
+            };
+            self.thermal[l] = if e > self.thermal[l] {
+                e
+            } else {
+                self.thermal[l]
+            };
+            let (aa, ba, ca, na, ea) = (a.abs(), b.abs(), c.abs(), c_neg.abs(), e.abs());
+            let ab = if aa < ba { aa } else { ba };
+            let cn = if ca < na { ca } else { na };
+            let near = if ab < cn { ab } else { cn };
+            let near = if ea < near { ea } else { near };
+            self.margin[l] = if near < self.margin[l] {
+                near
+            } else {
+                self.margin[l]
+            };
+        }
+        (v, current)
+    }
 }
 
 impl Thresholds {
@@ -221,24 +295,13 @@ impl Thresholds {
                 ReverseFlow::Allow => f64::NEG_INFINITY,
                 ReverseFlow::Forbid => (base.head_p_pu - WORSE_EPS_PU).min(0.0),
             },
-            ov2: Vec::with_capacity(n),
-            uv2: Vec::with_capacity(n),
-            ch_hi2: Vec::with_capacity(n),
-            ch_lo2: Vec::with_capacity(n),
-            th2: Vec::with_capacity(n),
-            inv_2th: Vec::with_capacity(n),
+            v0: base.v_pu.clone(),
+            v_max_pu: limits.v_max_pu,
+            v_min_pu: limits.v_min_pu,
         };
-        let signed_square = |v: f64| if v > 0.0 { v * v } else { -1.0 };
         for i in 0..n {
-            let v0 = base.v_pu[i];
-            let ov = limits.v_max_pu.max(v0 + WORSE_EPS_PU);
-            let uv = limits.v_min_pu.min(v0 - WORSE_EPS_PU);
-            t.ov.push(ov);
-            t.uv.push(uv);
-            t.ov2.push(ov * ov);
-            t.uv2.push(signed_square(uv));
-            t.ch_hi2.push((v0 + change_pu).powi(2));
-            t.ch_lo2.push(signed_square(v0 - change_pu));
+            t.ov.push(t.ov_at(i));
+            t.uv.push(t.uv_at(i));
             let th = if i == 0 {
                 f64::INFINITY
             } else {
@@ -246,66 +309,100 @@ impl Thresholds {
                 (rating_pu * limits.thermal_pct / 100.0).max(base.i_pu[i] + WORSE_EPS_PU)
             };
             t.th.push(th);
-            t.th2.push(th * th);
-            t.inv_2th.push(if th.is_finite() { 0.5 / th } else { 0.0 });
         }
         t
+    }
+
+    /// Overvoltage threshold of node `i`: the limit, or a hair above the base voltage.
+    #[inline(always)]
+    fn ov_at(&self, i: usize) -> f64 {
+        self.v_max_pu.max(self.v0[i] + WORSE_EPS_PU)
+    }
+
+    /// Undervoltage threshold of node `i`: the limit, or a hair below the base voltage.
+    #[inline(always)]
+    fn uv_at(&self, i: usize) -> f64 {
+        self.v_min_pu.min(self.v0[i] - WORSE_EPS_PU)
     }
 
     /// Replaces the thermal limit of the branch feeding node `i` by `limit_pu` (a what-if
     /// rating), kept above the base-case current `base_i_pu` as every thermal threshold is.
     pub(crate) fn set_thermal_limit_pu(&mut self, i: usize, limit_pu: f64, base_i_pu: f64) {
         debug_assert!(i > 0, "the head has no feeding branch");
-        let th = limit_pu.max(base_i_pu + WORSE_EPS_PU);
-        self.th[i] = th;
-        self.th2[i] = th * th;
+        self.th[i] = limit_pu.max(base_i_pu + WORSE_EPS_PU);
     }
 
     /// Which criteria (bits) the solved state violates, and the smallest distance of any
-    /// quantity from its threshold (pu of voltage, current or power; approximate to first
-    /// order, erring small). Convergence is judged by the caller.
-    pub fn violated(&self, network: &Network, state: &FlowState) -> (u8, f64) {
+    /// quantity from its threshold (pu of voltage, current or power); `seen` is filled with
+    /// what the criteria see in that state. Convergence is judged by the caller.
+    pub fn judge(&self, state: &FlowState, seen: &mut Snapshot) -> (u8, f64) {
         let n = state.n_nodes();
         let (v_re, v_im) = (&state.v_re()[..n], &state.v_im()[..n]);
         let (j_re, j_im) = (&state.j_re()[..n], &state.j_im()[..n]);
-        let (ov2, uv2) = (&self.ov2[..n], &self.uv2[..n]);
-        let (ch_hi2, ch_lo2, th2) = (&self.ch_hi2[..n], &self.ch_lo2[..n], &self.th2[..n]);
-        let inv_2th = &self.inv_2th[..n];
-        // Largest excess over each criterion's threshold (in squared form; > 0 is a violation)
-        // and the smallest distance to any threshold. Plain comparisons rather than f64::max
-        // and min keep the loop branch-free and vectorisable; a NaN candidate (0 · ∞ at the
-        // head) is never taken.
-        let (mut over, mut under, mut change, mut thermal) =
-            (f64::MIN, f64::MIN, f64::MIN, f64::MIN);
-        let mut v2_margin = f64::INFINITY;
-        let mut i_margin = f64::INFINITY;
-        for i in 0..n {
-            let v2 = v_re[i] * v_re[i] + v_im[i] * v_im[i];
-            let i2 = j_re[i] * j_re[i] + j_im[i] * j_im[i];
-            let (a, b) = (v2 - ov2[i], uv2[i] - v2);
-            let (c, d) = (v2 - ch_hi2[i], ch_lo2[i] - v2);
-            let e = i2 - th2[i];
-            over = if a > over { a } else { over };
-            under = if b > under { b } else { under };
-            let cd = if c > d { c } else { d };
-            change = if cd > change { cd } else { change };
-            thermal = if e > thermal { e } else { thermal };
-            let (aa, ba, ca, da) = (a.abs(), b.abs(), c.abs(), d.abs());
-            let ab = if aa < ba { aa } else { ba };
-            let cd_abs = if ca < da { ca } else { da };
-            let near = if ab < cd_abs { ab } else { cd_abs };
-            v2_margin = if near < v2_margin { near } else { v2_margin };
-            let ei = e.abs() * inv_2th[i];
-            i_margin = if ei < i_margin { ei } else { i_margin };
+        let (v0, th) = (&self.v0[..n], &self.th[..n]);
+        let (v_out, i_out) = (&mut seen.v_pu[..n], &mut seen.i_pu[..n]);
+        // Largest excess over each criterion's threshold (> 0 is a violation) and the smallest
+        // distance to any threshold, in one pass over the state. Plain comparisons rather than
+        // f64::max and min keep the loop branch-free, and one accumulator per lane lets it run
+        // in vector registers (a max or min reduction is not reordered by the compiler). At
+        // the head the thermal threshold is infinite: its excess is −∞ and its distance +∞,
+        // never taken.
+        let mut acc = Scan::new(self.v_max_pu, self.v_min_pu, self.change_pu);
+        let whole = n - n % LANES;
+        let lanes = |x: &[f64], start: usize| -> [f64; LANES] {
+            x[start..start + LANES].try_into().expect("a whole chunk")
+        };
+        for start in (0..whole).step_by(LANES) {
+            let (v, current) = acc.visit(
+                [lanes(v_re, start), lanes(v_im, start)],
+                [lanes(j_re, start), lanes(j_im, start)],
+                lanes(v0, start),
+                lanes(th, start),
+            );
+            v_out[start..start + LANES].copy_from_slice(&v);
+            i_out[start..start + LANES].copy_from_slice(&current);
         }
+        for i in whole..n {
+            // The last few nodes in lane 0, the other lanes idle (a node at its base voltage
+            // with no current and no rating is never beyond or near anything).
+            let one = |x: f64, idle: f64| {
+                let mut out = [idle; LANES];
+                out[0] = x;
+                out
+            };
+            let (v, current) = acc.visit(
+                [one(v_re[i], 1.0), one(v_im[i], 0.0)],
+                [one(j_re[i], 0.0), one(j_im[i], 0.0)],
+                one(v0[i], 1.0),
+                one(th[i], f64::INFINITY),
+            );
+            v_out[i] = v[0];
+            i_out[i] = current[0];
+        }
+        let Scan {
+            over,
+            under,
+            moved,
+            thermal,
+            margin,
+            ..
+        } = acc;
+        let largest = |lanes: [f64; LANES]| lanes.into_iter().fold(f64::MIN, f64::max);
+        let (over, under, moved, thermal) = (
+            largest(over),
+            largest(under),
+            largest(moved),
+            largest(thermal),
+        );
+        let mut margin = margin.into_iter().fold(f64::INFINITY, f64::min);
+        i_out[0] = 0.0;
+        let head_p = head_p_pu(state);
+        seen.head_p_pu = head_p;
         let mut mask = (u8::from(over > 0.0) * OVER)
             | (u8::from(under > 0.0) * UNDER)
-            | (u8::from(change > 0.0) * CHANGE)
+            | (u8::from(moved > 0.0) * CHANGE)
             | (u8::from(thermal > 0.0) * THERMAL);
-        // Voltage thresholds are below 1.5 pu: 2t < 3.
-        let mut margin = (v2_margin / 3.0).min(i_margin);
         if self.head_p_min_pu > f64::NEG_INFINITY {
-            let head_p = head_p_pu(network, state);
             if head_p < self.head_p_min_pu {
                 mask |= REVERSE;
             }
@@ -414,58 +511,164 @@ pub(crate) fn first_crossing(
 }
 
 /// The smallest injection (pu) at which some element of `subset` is predicted to cross its
-/// threshold, by a straight line through two solved injections `(p_a, a)` and `(p_b, b)`,
-/// `p_a < p_b`. Infinite when nothing is heading for its threshold.
+/// threshold, from solved injections `points` in increasing order: by the straight line through
+/// two, or by the parabola through three, extrapolated beyond the last where it does not
+/// reach between them; over the elements of `watched`, or all. Infinite when nothing is
+/// heading for its threshold.
+///
+/// # Panics
+/// Unless two or three points are given.
 pub(crate) fn predict_crossing_pu(
     thresholds: &Thresholds,
     subset: u8,
     base: &Snapshot,
-    (p_a, a): (f64, &Snapshot),
-    (p_b, b): (f64, &Snapshot),
+    points: &[(f64, &Snapshot)],
+    watched: Option<&Watched>,
 ) -> f64 {
-    let dp = p_b - p_a;
-    // Fraction of the way from a to b (beyond b when > 1) at which the line through
-    // (p_a, q_a) and (p_b, q_b) reaches the threshold, for rising quantities; written
-    // branch-free so the loops vectorise.
-    let fraction = |q_a: f64, q_b: f64, threshold: f64| {
-        let rise = q_b - q_a;
-        let f = (threshold - q_a) / rise;
-        if rise > 0.0 { f } else { f64::INFINITY }
-    };
-    let pick = |best: f64, f: f64| if f < best { f } else { best };
-    let n = a.v_pu.len();
-    let (va, vb) = (&a.v_pu[..n], &b.v_pu[..n]);
+    match *points {
+        [(p_a, a), (p_b, b)] => {
+            let dp = p_b - p_a;
+            // Where the line through (p_a, q_a) and (p_b, q_b) reaches the threshold, for rising
+            // quantities; written branch-free so the loops vectorise.
+            let line = |[q_a, q_b]: [f64; 2], threshold: f64| {
+                let rise = q_b - q_a;
+                let f = (threshold - q_a) / rise;
+                if rise > 0.0 {
+                    p_a + f * dp
+                } else {
+                    f64::INFINITY
+                }
+            };
+            earliest_crossing(thresholds, subset, base, [a, b], watched, line)
+        }
+        [(p_0, s_0), (p_1, s_1), (p_2, s_2)] => {
+            // The parabola costs a square root and divisions per element: it is worked out
+            // only for the elements whose line through the last two points crosses within a
+            // few times the distance of the earliest such crossing.
+            let d_12 = p_2 - p_1;
+            let line = |q_1: f64, q_2: f64, threshold: f64| {
+                let rise = q_2 - q_1;
+                if rise > 0.0 {
+                    p_2 + (threshold - q_2) / rise * d_12
+                } else {
+                    f64::INFINITY
+                }
+            };
+            let at = [s_0, s_1, s_2];
+            let first_line = earliest_crossing(
+                thresholds,
+                subset,
+                base,
+                at,
+                watched,
+                |[_, q_1, q_2], threshold| line(q_1, q_2, threshold),
+            );
+            let bound = p_2 + PARABOLA_REACH * (first_line - p_2).max(0.0);
+            let (inv_01, inv_12, inv_02) = (1.0 / (p_1 - p_0), 1.0 / d_12, 1.0 / (p_2 - p_0));
+            let parabola = |[q_0, q_1, q_2]: [f64; 3], threshold: f64| {
+                if line(q_1, q_2, threshold) > bound {
+                    return f64::INFINITY;
+                }
+                // q(p_2 + x) = q_2 + slope·x + curve·x² through the three points.
+                let d_01 = (q_1 - q_0) * inv_01;
+                let d_12 = (q_2 - q_1) * inv_12;
+                let curve = (d_12 - d_01) * inv_02;
+                let slope = d_12 + curve * (p_2 - p_1);
+                let rest = threshold - q_2;
+                let disc = slope * slope + 4.0 * curve * rest;
+                // The root nearest 0 on the rising side, in the form that stays accurate as
+                // the curvature vanishes; the tangent where the parabola bends away first.
+                let x = if disc >= 0.0 {
+                    2.0 * rest / (slope + disc.sqrt())
+                } else {
+                    rest / slope
+                };
+                if x >= 0.0 { p_2 + x } else { f64::INFINITY }
+            };
+            earliest_crossing(thresholds, subset, base, at, watched, parabola)
+        }
+        _ => panic!("a crossing is predicted from two or three solved injections"),
+    }
+}
+
+/// How far beyond the last point, in multiples of the earliest straight-line crossing's
+/// distance, the parabola of [`predict_crossing_pu`] is worked out.
+const PARABOLA_REACH: f64 = 3.0;
+
+/// The elements a prediction looks at, when not all: node indices for the voltage criteria,
+/// node indices whose feeding branch is looked at for the thermal one.
+#[derive(Debug, Clone, Default)]
+pub(crate) struct Watched {
+    pub nodes: Vec<u32>,
+    pub branches: Vec<u32>,
+}
+
+/// The smallest `crossing(quantities at each snapshot, threshold)` over the elements of
+/// `subset` (those of `watched`, or all), each quantity in "upper" form (rising toward its
+/// threshold).
+fn earliest_crossing<const K: usize>(
+    thresholds: &Thresholds,
+    subset: u8,
+    base: &Snapshot,
+    at: [&Snapshot; K],
+    watched: Option<&Watched>,
+    crossing: impl Fn([f64; K], f64) -> f64,
+) -> f64 {
+    let n = at[0].v_pu.len();
+    match watched {
+        None => scan(thresholds, subset, base, at, 0..n, 1..n, crossing),
+        Some(w) => {
+            let nodes = w.nodes.iter().map(|&i| i as usize);
+            let branches = w.branches.iter().map(|&i| i as usize);
+            scan(thresholds, subset, base, at, nodes, branches, crossing)
+        }
+    }
+}
+
+fn scan<const K: usize>(
+    thresholds: &Thresholds,
+    subset: u8,
+    base: &Snapshot,
+    at: [&Snapshot; K],
+    nodes: impl Iterator<Item = usize> + Clone,
+    branches: impl Iterator<Item = usize>,
+    crossing: impl Fn([f64; K], f64) -> f64,
+) -> f64 {
+    let pick = |best: f64, p: f64| if p < best { p } else { best };
+    let n = at[0].v_pu.len();
+    let v = at.map(|s| &s.v_pu[..n]);
     let mut best = f64::INFINITY;
     if subset & OVER != 0 {
         let ov = &thresholds.ov[..n];
-        for i in 0..n {
-            best = pick(best, fraction(va[i], vb[i], ov[i]));
+        for i in nodes.clone() {
+            best = pick(best, crossing(v.map(|v| v[i]), ov[i]));
         }
     }
     if subset & UNDER != 0 {
         let uv = &thresholds.uv[..n];
-        for i in 0..n {
-            best = pick(best, fraction(-va[i], -vb[i], -uv[i]));
+        for i in nodes.clone() {
+            best = pick(best, crossing(v.map(|v| -v[i]), -uv[i]));
         }
     }
     if subset & THERMAL != 0 {
-        let (ia, ib, th) = (&a.i_pu[..n], &b.i_pu[..n], &thresholds.th[..n]);
-        for i in 1..n {
-            best = pick(best, fraction(ia[i], ib[i], th[i]));
+        let current = at.map(|s| &s.i_pu[..n]);
+        let th = &thresholds.th[..n];
+        for i in branches {
+            best = pick(best, crossing(current.map(|c| c[i]), th[i]));
         }
     }
     if subset & CHANGE != 0 && thresholds.change_pu.is_finite() {
         let v0 = &base.v_pu[..n];
-        for i in 0..n {
-            let (ca, cb) = ((va[i] - v0[i]).abs(), (vb[i] - v0[i]).abs());
-            best = pick(best, fraction(ca, cb, thresholds.change_pu));
+        for i in nodes {
+            let change = v.map(|v| (v[i] - v0[i]).abs());
+            best = pick(best, crossing(change, thresholds.change_pu));
         }
     }
     if subset & REVERSE != 0 && thresholds.head_p_min_pu > f64::NEG_INFINITY {
         best = pick(
             best,
-            fraction(-a.head_p_pu, -b.head_p_pu, -thresholds.head_p_min_pu),
+            crossing(at.map(|s| -s.head_p_pu), -thresholds.head_p_min_pu),
         );
     }
-    p_a + best * dp
+    best
 }

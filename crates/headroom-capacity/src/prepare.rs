@@ -139,7 +139,7 @@ impl<'f> FeederStudy<'f> {
             .map(|(scenario, demand)| {
                 let mut base = FlowState::flat(&network);
                 let base_result = solve(&network, &demand, &[], &mut base, &solve_settings);
-                let snapshot = Snapshot::capture(&network, &base);
+                let snapshot = Snapshot::capture(&base);
                 let thresholds = Thresholds::new(feeder, &network, &study.limits, &snapshot);
                 let mut subtree_ov_headroom: Vec<f64> = (0..n)
                     .map(|i| thresholds.ov[i] - snapshot.v_pu[i])

@@ -7,7 +7,7 @@ use headroom_flow::{FlowState, Injection, SolveSettings, solve};
 use headroom_model::BusIdx;
 
 use crate::criteria::{
-    ALL, CHANGE, Element, Limit, OVER, REVERSE, Snapshot, THERMAL, UNDER, first_crossing,
+    ALL, CHANGE, Element, Limit, OVER, REVERSE, Snapshot, THERMAL, UNDER, Watched, first_crossing,
     predict_crossing_pu,
 };
 use crate::prepare::{FeederStudy, ScenarioCase};
@@ -106,6 +106,11 @@ struct Evaluator<'s, 'f> {
     /// voltage change at node i from a current I injected at the plant is ≈ Z_common(i)·I.
     common_r_pu: Vec<f64>,
     common_x_pu: Vec<f64>,
+    /// The elements extrapolating predictions look at: the nodes of the plant's path, per
+    /// node of it the off-path node nearest to each voltage limit, the branches of the path.
+    watched: Watched,
+    /// What the criteria saw in the last solve.
+    seen: Snapshot,
     outcomes: HashMap<u64, Outcome>,
     load_flows: u32,
     sweep_iterations: u32,
@@ -125,10 +130,47 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         let parents = study.network.parents();
         let mut common_r_pu = vec![0.0; n];
         let mut common_x_pu = vec![0.0; n];
-        for i in 1..n {
+        // The point where each node's path leaves the plant's, and per such point the node
+        // with the least headroom to each voltage limit: the plant moves every node hanging
+        // from one point alike (to first order), so only these can be the first to cross.
+        let (v0, thresholds) = (&case.snapshot.v_pu, &case.thresholds);
+        let mut leaves_at = vec![0u32; n];
+        let mut nearest_ov = vec![0u32; n];
+        let mut nearest_uv = vec![0u32; n];
+        for i in 0..n {
             let from = if on_path[i] { i } else { parents[i] as usize };
             common_r_pu[i] = study.path_r_pu[from];
             common_x_pu[i] = study.path_x_pu[from];
+            let point = if on_path[i] {
+                i
+            } else {
+                leaves_at[from] as usize
+            };
+            leaves_at[i] = point as u32;
+            if on_path[i] {
+                (nearest_ov[i], nearest_uv[i]) = (i as u32, i as u32);
+            } else {
+                let (o, u) = (nearest_ov[point] as usize, nearest_uv[point] as usize);
+                if thresholds.ov[i] - v0[i] < thresholds.ov[o] - v0[o] {
+                    nearest_ov[point] = i as u32;
+                }
+                if v0[i] - thresholds.uv[i] < v0[u] - thresholds.uv[u] {
+                    nearest_uv[point] = i as u32;
+                }
+            }
+        }
+        let mut watched = Watched::default();
+        for node in study.feeder.path_to_head(bus) {
+            let m = node.index();
+            watched.nodes.push(m as u32);
+            for extra in [nearest_ov[m], nearest_uv[m]] {
+                if extra as usize != m && watched.nodes.last() != Some(&extra) {
+                    watched.nodes.push(extra);
+                }
+            }
+            if m != 0 {
+                watched.branches.push(m as u32);
+            }
         }
         Evaluator {
             study,
@@ -145,6 +187,8 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             newest: 0,
             common_r_pu,
             common_x_pu,
+            watched,
+            seen: case.snapshot.clone(),
             outcomes: HashMap::new(),
             load_flows: 0,
             sweep_iterations: 0,
@@ -218,7 +262,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             match solve(network, demand, &injection, &mut self.work, &stage_settings) {
                 Ok(converged) => {
                     self.sweep_iterations += converged.iterations;
-                    let (mask, margin_pu) = thresholds.violated(network, &self.work);
+                    let (mask, margin_pu) = thresholds.judge(&self.work, &mut self.seen);
                     outcome = Outcome::Converged(mask);
                     if margin_pu > settled_margin_pu {
                         break;
@@ -340,10 +384,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
     fn point(&mut self, p_kw: f64) -> (Outcome, Option<Snapshot>) {
         let outcome = self.solve_at(p_kw);
         let snapshot = match outcome {
-            Outcome::Converged(_) => {
-                let (_, state) = self.last().expect("a converged injection is kept");
-                Some(Snapshot::capture(&self.study.network, state))
-            }
+            Outcome::Converged(_) => Some(self.seen.clone()),
             Outcome::Failed => None,
         };
         (outcome, snapshot)
@@ -413,7 +454,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             }
         }
         if subset & REVERSE != 0 && thresholds.head_p_min_pu > f64::NEG_INFINITY {
-            let head_p = crate::criteria::head_p_pu(&self.study.network, anchor);
+            let head_p = crate::criteria::head_p_pu(anchor);
             best = best.min(anchor_p_pu + (head_p - thresholds.head_p_min_pu).max(0.0));
         }
         best
@@ -427,6 +468,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             mut lo,
             mut lo_snap,
             mut below,
+            mut older,
             mut hi,
         } = start;
         let to_steps = 1000.0 / self.resolution_kw; // pu → resolutions (1 MVA base)
@@ -441,10 +483,19 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             let lo_pu = self.kw(lo) / 1000.0;
             let predicted_pu = match (&hi, &below) {
                 // Interpolate between the pass and a solved failure.
-                (Some((h, Some(h_snap))), _) => self.predict(subset, (lo, &lo_snap), (*h, h_snap)),
+                (Some((h, Some(h_snap))), _) => {
+                    self.predict(subset, &[(lo, &lo_snap), (*h, h_snap)], false)
+                }
                 // Extrapolate from the last two passes, and from the model anchored at the pass.
                 (_, Some((b, b_snap))) => {
-                    let secant = self.predict(subset, (*b, b_snap), (lo, &lo_snap));
+                    let secant = match &older {
+                        Some((o, o_snap)) => self.predict(
+                            subset,
+                            &[(*o, o_snap), (*b, b_snap), (lo, &lo_snap)],
+                            true,
+                        ),
+                        None => self.predict(subset, &[(*b, b_snap), (lo, &lo_snap)], true),
+                    };
                     match self.last() {
                         Some((p_pu, state)) if p_pu == lo_pu => {
                             secant.min(self.model_estimate_pu(subset, lo_pu, state))
@@ -472,6 +523,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             let (outcome, snapshot) = self.point(self.kw(steps));
             if outcome.passes(subset) {
                 let snap = snapshot.expect("a passing injection has converged");
+                older = below.take();
                 below = Some((lo, std::mem::replace(&mut lo_snap, snap)));
                 lo = steps;
             } else {
@@ -480,14 +532,22 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         }
     }
 
-    fn predict(&self, subset: u8, a: (u64, &Snapshot), b: (u64, &Snapshot)) -> f64 {
+    /// The predicted crossing of `subset` (pu) from solved injections in increasing order (in
+    /// resolutions): see [`predict_crossing_pu`]. Beyond the last solved injection only the
+    /// watched elements are looked at; between a pass and a failure every element is, so that
+    /// whatever failed is seen.
+    fn predict(&self, subset: u8, points: &[(u64, &Snapshot)], beyond: bool) -> f64 {
         let pu_per_step = self.resolution_kw / 1000.0;
+        let mut at = [(0.0, &self.case.snapshot); 3];
+        for (slot, &(steps, snapshot)) in at.iter_mut().zip(points) {
+            *slot = (steps as f64 * pu_per_step, snapshot);
+        }
         predict_crossing_pu(
             &self.case.thresholds,
             subset,
             &self.case.snapshot,
-            (a.0 as f64 * pu_per_step, a.1),
-            (b.0 as f64 * pu_per_step, b.1),
+            &at[..points.len()],
+            beyond.then_some(&self.watched),
         )
     }
 
@@ -599,6 +659,7 @@ struct FastStart {
     lo: u64,
     lo_snap: Snapshot,
     below: Option<(u64, Snapshot)>,
+    older: Option<(u64, Snapshot)>,
     hi: Option<(u64, Option<Snapshot>)>,
 }
 
@@ -671,6 +732,7 @@ impl FeederStudy<'_> {
                         lo: 0,
                         lo_snap: case.snapshot.clone(),
                         below: None,
+                        older: None,
                         hi: None,
                     },
                 );
@@ -692,9 +754,12 @@ impl FeederStudy<'_> {
                                         FastStart {
                                             lo: *h,
                                             lo_snap: h_snap.clone(),
-                                            // The secant from the base case: the limits
+                                            // The parabola through the base case, the
+                                            // answer and the failure above it: the limits
                                             // sought lie well beyond the answer.
-                                            below: Some((0, case.snapshot.clone())),
+                                            below: Some((answer.lo, answer.lo_snap.clone())),
+                                            older: (answer.lo > 0)
+                                                .then(|| (0, case.snapshot.clone())),
                                             hi: None,
                                         },
                                     )

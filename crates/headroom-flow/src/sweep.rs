@@ -72,7 +72,8 @@ impl std::error::Error for NotConverged {}
 
 /// Node voltages and branch currents of one solve, reused from solve to solve.
 ///
-/// `j` of node `i` is the current in the branch feeding node `i`, flowing away from the head.
+/// `j` of node `i` is the current in the branch feeding node `i`, flowing away from the head;
+/// after a solve, the head's slot holds the total current its branches draw from it.
 #[derive(Debug, Clone, PartialEq)]
 pub struct FlowState {
     pub(crate) v_re: Vec<f64>,
