@@ -488,19 +488,29 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                 }
                 // Extrapolate from the last two passes, and from the model anchored at the pass.
                 (_, Some((b, b_snap))) => {
-                    let secant = match &older {
-                        Some((o, o_snap)) => self.predict(
-                            subset,
-                            &[(*o, o_snap), (*b, b_snap), (lo, &lo_snap)],
-                            true,
+                    // The parabola through three passes or the line through two; and the node's
+                    // model anchored at the last pass where that comes first — except for the
+                    // thermal limits once a parabola is at hand: their model leaves the loads'
+                    // share of the current out and falls short, the parabola does not.
+                    let (curve, modelled) = match &older {
+                        Some((o, o_snap)) => (
+                            self.predict(
+                                subset,
+                                &[(*o, o_snap), (*b, b_snap), (lo, &lo_snap)],
+                                true,
+                            ),
+                            subset & !THERMAL,
                         ),
-                        None => self.predict(subset, &[(*b, b_snap), (lo, &lo_snap)], true),
+                        None => (
+                            self.predict(subset, &[(*b, b_snap), (lo, &lo_snap)], true),
+                            subset,
+                        ),
                     };
                     match self.last() {
                         Some((p_pu, state)) if p_pu == lo_pu => {
-                            secant.min(self.model_estimate_pu(subset, lo_pu, state))
+                            curve.min(self.model_estimate_pu(modelled, lo_pu, state))
                         }
-                        _ => secant,
+                        _ => curve,
                     }
                 }
                 (_, None) => self.model_estimate_pu(subset, 0.0, &self.case.base),
