@@ -116,6 +116,43 @@ struct Evaluator<'s, 'f> {
     sweep_iterations: u32,
 }
 
+thread_local! {
+    /// Solution buffers of finished node answers, reused by the next ones on the same thread
+    /// instead of being allocated and filled again.
+    static SPARE_STATES: std::cell::RefCell<Vec<FlowState>> = const { std::cell::RefCell::new(Vec::new()) };
+}
+
+/// Spare solution buffers kept per thread.
+const SPARE_STATES_KEPT: usize = SOLVED_KEPT + 1;
+
+/// A state buffer for `network`, reused when one of its size is spare. Its contents are
+/// whatever the last user left: a warm start overwrites every voltage and a solve every
+/// current.
+fn spare_state(network: &headroom_flow::Network) -> FlowState {
+    let n = network.n_nodes();
+    SPARE_STATES
+        .with_borrow_mut(|spare| {
+            spare.retain(|state| state.n_nodes() == n);
+            spare.pop()
+        })
+        .unwrap_or_else(|| FlowState::flat(network))
+}
+
+impl Drop for Evaluator<'_, '_> {
+    fn drop(&mut self) {
+        let n = self.work.n_nodes();
+        let mut states = std::mem::take(&mut self.solved);
+        states.push(std::mem::replace(&mut self.work, FlowState::empty()));
+        SPARE_STATES.with_borrow_mut(|spare| {
+            for state in states {
+                if spare.len() < SPARE_STATES_KEPT && state.n_nodes() == n {
+                    spare.push(state);
+                }
+            }
+        });
+    }
+}
+
 impl<'s, 'f> Evaluator<'s, 'f> {
     fn new(study: &'s FeederStudy<'f>, s: usize, bus: BusIdx) -> Evaluator<'s, 'f> {
         let case = &study.cases[s];
@@ -181,7 +218,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             // The largest multiple of the resolution at most max_kw (guarding against
             // 20000 / 0.1 landing a hair below an integer).
             max_steps: (search.max_kw / search.resolution_kw + 1e-9).floor() as u64,
-            work: case.base.clone(),
+            work: spare_state(&study.network),
             solved: Vec::with_capacity(SOLVED_KEPT),
             solved_p_pu: [f64::NAN; SOLVED_KEPT],
             newest: 0,
@@ -219,7 +256,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         self.load_flows += 1;
         if let Outcome::Converged(_) = outcome {
             let slot = if self.solved.len() < SOLVED_KEPT {
-                self.solved.push(FlowState::flat(&self.study.network));
+                self.solved.push(spare_state(&self.study.network));
                 self.solved.len() - 1
             } else {
                 (self.newest + 1) % SOLVED_KEPT

@@ -94,6 +94,16 @@ impl FlowState {
         }
     }
 
+    /// A state of no nodes (a placeholder; allocates nothing).
+    pub fn empty() -> FlowState {
+        FlowState {
+            v_re: Vec::new(),
+            v_im: Vec::new(),
+            j_re: Vec::new(),
+            j_im: Vec::new(),
+        }
+    }
+
     /// Resets to the flat start without allocating.
     pub fn set_flat(&mut self, network: &Network) {
         self.v_re.fill(network.head_v_pu);
