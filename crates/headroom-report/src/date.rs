@@ -28,28 +28,10 @@ fn civil_from_days(days: i64) -> (i64, u32, u32) {
     (year, month, day)
 }
 
-/// Checks a `YYYY-MM-DD` date (a real day of the Gregorian calendar) and returns it.
+/// Checks a `YYYY-MM-DD` date (a real day of the Gregorian calendar, years 1–9999; the same
+/// rule as an application's date in a queue file) and returns it.
 pub fn parse_date(text: &str) -> Option<String> {
-    let bytes = text.as_bytes();
-    if bytes.len() != 10 || bytes[4] != b'-' || bytes[7] != b'-' {
-        return None;
-    }
-    let number = |range: std::ops::Range<usize>| -> Option<u32> {
-        let part = &text[range];
-        part.bytes()
-            .all(|b| b.is_ascii_digit())
-            .then(|| part.parse().ok())?
-    };
-    let (year, month, day) = (number(0..4)?, number(5..7)?, number(8..10)?);
-    let leap = year % 4 == 0 && (year % 100 != 0 || year % 400 == 0);
-    let days_in_month = match month {
-        1 | 3 | 5 | 7 | 8 | 10 | 12 => 31,
-        4 | 6 | 9 | 11 => 30,
-        2 if leap => 29,
-        2 => 28,
-        _ => return None,
-    };
-    (1..=days_in_month).contains(&day).then(|| text.to_string())
+    headroom_capacity::ApplicationDate::parse(text).map(|_| text.to_string())
 }
 
 #[cfg(test)]
