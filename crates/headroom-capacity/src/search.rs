@@ -291,7 +291,19 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             (TIGHT_TOL_PU.min(settings.tol_pu), 0.0),
         ];
         let mut outcome = Outcome::Failed;
+        // The last sweep's largest change and the margin of the solution reached so far.
+        let mut reached: Option<(f64, f64)> = None;
         for (stage, &(tol_pu, settled_margin_pu)) in stages.iter().enumerate() {
+            // A solution whose last sweep already moved less than this stage's tolerance is
+            // where a solve to that tolerance would have stopped: judge it as it is.
+            if let Some((mismatch_pu, margin_pu)) = reached
+                && mismatch_pu <= tol_pu
+            {
+                if margin_pu > settled_margin_pu {
+                    break;
+                }
+                continue;
+            }
             let stage_settings = SolveSettings {
                 tol_pu,
                 max_iterations: settings.max_iterations,
@@ -304,6 +316,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                     if margin_pu > settled_margin_pu {
                         break;
                     }
+                    reached = Some((converged.mismatch_pu, margin_pu));
                 }
                 // The tight stage may stall on rounding: keep the verdict of the study's
                 // tolerance then.
