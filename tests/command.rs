@@ -10,6 +10,32 @@ use arrow_array::cast::AsArray;
 use arrow_array::{Array, ArrayRef, Float64Array, RecordBatch, StringArray, UInt64Array};
 use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 
+/// An empty folder `<prefix>-<pid>` below the build's scratch folder, for one test process.
+/// It is kept after the tests for inspection; folders of the same prefix whose process has
+/// ended are removed first (on Linux, where /proc tells; elsewhere they are left).
+pub fn scratch_folder(prefix: &str) -> PathBuf {
+    let scratch = PathBuf::from(env!("CARGO_TARGET_TMPDIR"));
+    if Path::new("/proc/self").exists()
+        && let Ok(entries) = std::fs::read_dir(&scratch)
+    {
+        for entry in entries.flatten() {
+            let name = entry.file_name();
+            let ended = name
+                .to_str()
+                .and_then(|n| n.strip_prefix(prefix))
+                .and_then(|rest| rest.strip_prefix('-'))
+                .and_then(|pid| pid.parse::<u32>().ok())
+                .is_some_and(|pid| !Path::new(&format!("/proc/{pid}")).exists());
+            if ended {
+                let _ = std::fs::remove_dir_all(entry.path());
+            }
+        }
+    }
+    let dir = scratch.join(format!("{prefix}-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    dir
+}
+
 /// The repository root (the parent of the tests crate).
 pub fn repo_root() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR"))

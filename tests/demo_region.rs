@@ -15,7 +15,7 @@ use std::sync::OnceLock;
 
 use headroom_model::{BusIdx, Feeder, load_feeders};
 
-use crate::command::{ParquetTable, repo_path, run_ok};
+use crate::command::{ParquetTable, repo_path, run_ok, scratch_folder};
 
 const UPLANDS: &str = "corrowmoor-uplands-33";
 const QUARRY_ROAD: &str = "corrowmoor-quarry-road-11";
@@ -44,10 +44,9 @@ struct NodeRow {
 fn demo() -> &'static DemoMap {
     static DEMO: OnceLock<DemoMap> = OnceLock::new();
     DEMO.get_or_init(|| {
-        // Below the build's scratch folder: one folder per test process, kept for inspection.
-        let out = PathBuf::from(env!("CARGO_TARGET_TMPDIR"))
-            .join(format!("demo-region-map-{}", std::process::id()));
-        let _ = std::fs::remove_dir_all(&out);
+        // Below the build's scratch folder: one folder per test process, kept for inspection
+        // until a later run finds its process gone.
+        let out = scratch_folder("demo-region-map");
         let stdout = run_ok(&[
             OsStr::new("map"),
             repo_path("feeders").as_os_str(),

@@ -10,7 +10,7 @@ use std::sync::OnceLock;
 
 use headroom_report::{DEFAULT_THRESHOLDS_KW, Limit, build_report, read_run};
 
-use crate::command::{ParquetTable, describe, repo_path, run, run_ok};
+use crate::command::{ParquetTable, describe, repo_path, run, run_ok, scratch_folder};
 
 /// The demo region mapped once, and its report written with a fixed date.
 struct DemoReport {
@@ -19,9 +19,7 @@ struct DemoReport {
 }
 
 fn scratch(name: &str) -> PathBuf {
-    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR"))
-        .join(format!("report-{name}-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
+    let dir = scratch_folder(&format!("report-{name}"));
     std::fs::create_dir_all(&dir).expect("scratch folder");
     dir
 }
