@@ -40,6 +40,9 @@ pub(crate) struct Table {
     pub(crate) rows: Vec<Row>,
     /// True when a required column is missing; the rows are then not worth reading.
     pub(crate) incomplete: bool,
+    /// True when the file is not valid UTF-8 (reported once, with its line): cells holding a
+    /// replaced byte are then not reported again.
+    replaced_bytes: bool,
 }
 
 /// One data row.
@@ -184,6 +187,7 @@ impl Table {
             }
         };
         let (text, utf8_error) = decode_utf8(file, &bytes);
+        let replaced_bytes = utf8_error.is_some();
         errors.extend(utf8_error);
         if text.trim().is_empty() {
             errors.push(Diagnostic::error(
@@ -331,6 +335,7 @@ impl Table {
             column_of,
             rows,
             incomplete,
+            replaced_bytes,
         })
     }
 
@@ -433,8 +438,12 @@ impl<'t> RowReader<'t> {
         self.table.has_column(column)
     }
 
-    /// Reports an error on a cell of this row.
+    /// Reports an error on a cell of this row — unless the cell holds a byte that was not
+    /// UTF-8, which the file's own error names already.
     pub(crate) fn error(&mut self, column: &str, value: Option<&str>, message: &str) {
+        if self.table.replaced_bytes && value.is_some_and(|v| v.contains('\u{FFFD}')) {
+            return;
+        }
         let mut diagnostic = Diagnostic::error(&self.table.file, message)
             .at_line(self.row.line)
             .at_column(column);
