@@ -529,7 +529,7 @@ pub(crate) fn predict_crossing_pu(
         [(p_a, a), (p_b, b)] => {
             let dp = p_b - p_a;
             // Where the line through (p_a, q_a) and (p_b, q_b) reaches the threshold, for rising
-            // quantities; written branch-free so the loops vectorise.
+            // quantities (a select, not a branch).
             let line = |[q_a, q_b]: [f64; 2], threshold: f64| {
                 let rise = q_b - q_a;
                 let f = (threshold - q_a) / rise;
@@ -625,6 +625,7 @@ fn earliest_crossing<const K: usize>(
     }
 }
 
+/// [`earliest_crossing`] over the given voltage nodes and thermal branches.
 fn scan<const K: usize>(
     thresholds: &Thresholds,
     subset: u8,

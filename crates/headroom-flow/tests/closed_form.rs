@@ -173,3 +173,42 @@ fn rules_of_thumb_of_the_trade() {
     let drop_pct = (1.0 - state.v_mag_pu(1)) * 100.0;
     assert!((drop_pct - 5.0).abs() < 0.3, "drop {drop_pct} %");
 }
+
+#[test]
+fn the_head_slot_holds_the_current_of_all_head_branches() {
+    // Two branches from the head, one of them to a chain: the head's slot must carry the sum of
+    // both, the current behind the head power that the reverse-flow criterion reads.
+    let header = FeederHeader::new("fork", 11.0, "src");
+    let feeder = Feeder::from_records(
+        "fork",
+        header,
+        vec![
+            NodeRecord::new("src"),
+            NodeRecord::new("a").with_load(800.0, 200.0),
+            NodeRecord::new("a2").with_load(300.0, 100.0),
+            NodeRecord::new("b").with_load(500.0, 150.0),
+        ],
+        vec![
+            BranchRecord::new("la", "src", "a", 1.0, 0.8, 400.0),
+            BranchRecord::new("la2", "a", "a2", 0.5, 0.4, 400.0),
+            BranchRecord::new("lb", "src", "b", 1.2, 0.9, 400.0),
+        ],
+    )
+    .unwrap();
+    let (network, state) = solve_two_bus(&feeder, &[]);
+    let children: Vec<usize> = (1..network.n_nodes())
+        .filter(|&i| network.parents()[i] == 0)
+        .collect();
+    assert_eq!(children.len(), 2);
+    let (jr, ji) = children.iter().fold((0.0, 0.0), |(r, i), &c| {
+        (r + state.j_re()[c], i + state.j_im()[c])
+    });
+    assert!((state.j_re()[0] - jr).abs() < 1e-15 && (state.j_im()[0] - ji).abs() < 1e-15);
+    // S = V · conj(J) at the head, in kW, against the sum of the sending-end flows.
+    let p_pu = state.v_re()[0] * state.j_re()[0] + state.v_im()[0] * state.j_im()[0];
+    let (p_head_kw, _) = Solution::new(&network, &state).head_power();
+    assert!(
+        (p_pu - network.kw_to_pu(p_head_kw)).abs() < 1e-12,
+        "{p_pu} vs {p_head_kw} kW"
+    );
+}
