@@ -357,43 +357,46 @@ fn an_empty_file_is_named() {
     );
 }
 
-#[test]
-fn a_file_that_is_not_utf8_is_named_with_the_line() {
+/// Writes f1's nodes.csv from `rows` (bytes, the header first) and checks that the one error
+/// is the file's "not UTF-8" at `at`.
+fn assert_only_the_utf8_error(rows: &[&[u8]], at: &'static [(usize, &'static str)]) {
     let region = Region::good();
-    // A Latin-1 "é" in a free-text column that the program otherwise ignores.
-    let mut nodes = b"id,x,y,load_kw,load_kvar,gen_kw,gen_kvar,name\nsub,0,0,0,0,0,0,\n".to_vec();
-    nodes.extend_from_slice(b"n1,100,0,200,50,0,0,Caf\xe9\n");
-    nodes
-        .extend_from_slice(b"n2,200,0,150,40,50,0,\nn3,300,0,100,20,0,0,\nn4,200,100,80,20,0,0,\n");
-    region.write("region/f1/nodes.csv", nodes);
+    region.write("region/f1/nodes.csv", rows.concat());
     let lines = region.errors(&[]);
     assert_reports(
         &lines,
         &[Problem {
             file: "f1/nodes.csv",
-            at: &[(3, "")],
+            at,
             says: "UTF-8",
         }],
     );
 }
 
 #[test]
+fn a_file_that_is_not_utf8_is_named_with_the_line() {
+    // A Latin-1 "é" in a free-text column that the program otherwise ignores.
+    assert_only_the_utf8_error(
+        &[
+            b"id,x,y,load_kw,load_kvar,gen_kw,gen_kvar,name\nsub,0,0,0,0,0,0,\n",
+            b"n1,100,0,200,50,0,0,Caf\xe9\n",
+            b"n2,200,0,150,40,50,0,\nn3,300,0,100,20,0,0,\nn4,200,100,80,20,0,0,\n",
+        ],
+        &[(3, "")],
+    );
+}
+
+#[test]
 fn a_bad_byte_inside_a_number_is_reported_once_as_not_utf8() {
-    let region = Region::good();
     // A Latin-1 "½" (0xBD) typed into load_kw of n2, line 4: one message, the file's, not a
     // second one calling the cell "not a number".
-    let mut nodes = b"id,x,y,load_kw,load_kvar,gen_kw,gen_kvar\nsub,0,0,0,0,0,0\n".to_vec();
-    nodes.extend_from_slice(b"n1,100,0,200,50,0,0\nn2,200,0,150\xbd,40,50,0\n");
-    nodes.extend_from_slice(b"n3,300,0,100,20,0,0\nn4,200,100,80,20,0,0\n");
-    region.write("region/f1/nodes.csv", nodes);
-    let lines = region.errors(&[]);
-    assert_reports(
-        &lines,
-        &[Problem {
-            file: "f1/nodes.csv",
-            at: &[(4, "")],
-            says: "UTF-8",
-        }],
+    assert_only_the_utf8_error(
+        &[
+            b"id,x,y,load_kw,load_kvar,gen_kw,gen_kvar\nsub,0,0,0,0,0,0\n",
+            b"n1,100,0,200,50,0,0\nn2,200,0,150\xbd,40,50,0\n",
+            b"n3,300,0,100,20,0,0\nn4,200,100,80,20,0,0\n",
+        ],
+        &[(4, "")],
     );
 }
 
