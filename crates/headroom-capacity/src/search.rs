@@ -379,15 +379,12 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                 .map(|m| (p_pu - picked[m].0) / (picked[j].0 - picked[m].0))
                 .product();
         }
-        let states = picked.map(|(_, state)| (state.v_re(), state.v_im()));
-        self.work.set_voltages(|i| {
-            let (mut re, mut im) = (0.0, 0.0);
-            for j in 0..count {
-                re += w[j] * states[j].0[i];
-                im += w[j] * states[j].1[i];
-            }
-            (re, im)
-        });
+        let parts = [
+            (w[0], picked[0].1),
+            (w[1], picked[1].1),
+            (w[2], picked[2].1),
+        ];
+        self.work.set_combination(&parts[..count]);
         true
     }
 
