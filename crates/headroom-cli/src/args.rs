@@ -88,7 +88,8 @@ pub struct MapArgs {
     #[arg(long, value_enum, default_value_t = SearchArg::Fast)]
     pub search: SearchArg,
     /// Skip the capacity under each criterion alone (hosting_kw_voltage, _thermal, _change,
-    /// _reverse are then empty): about a third of the load flows.
+    /// _reverse are then empty). They take more than half of a map's load flows, so this
+    /// makes a map two to three times faster.
     #[arg(long)]
     pub no_criteria_detail: bool,
     /// PROJJSON file describing the CRS of the coordinates, for a `crs` that is neither
