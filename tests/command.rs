@@ -10,9 +10,10 @@ use arrow_array::cast::AsArray;
 use arrow_array::{Array, ArrayRef, Float64Array, RecordBatch, StringArray, UInt64Array};
 use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 
-/// An empty folder `<prefix>-<pid>` below the build's scratch folder, for one test process.
-/// It is kept after the tests for inspection; folders of the same prefix whose process has
-/// ended are removed first (on Linux, where /proc tells; elsewhere they are left).
+/// The path of a folder `<prefix>-<pid>` below the build's scratch folder, for one test
+/// process: removed if it exists, not created. It is kept after the tests for inspection;
+/// folders of the same prefix whose process has ended are removed here (on Linux, where /proc
+/// tells; elsewhere they are left).
 pub fn scratch_folder(prefix: &str) -> PathBuf {
     let scratch = PathBuf::from(env!("CARGO_TARGET_TMPDIR"));
     if Path::new("/proc/self").exists()
