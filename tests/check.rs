@@ -6,14 +6,13 @@ use std::path::Path;
 use assert_cmd::Command;
 use serde_json::Value;
 
-use crate::command::{ParquetTable, headroom_path, repo_path};
+use crate::command::{ParquetTable, repo_path};
 
 const CAUTION: &str = "Caution: planning estimates only.";
 
+/// The shared `headroom` command, with assert_cmd's assertions.
 fn headroom() -> Command {
-    let mut command = Command::new(headroom_path());
-    command.current_dir(crate::command::repo_root());
-    command
+    Command::from_std(crate::command::headroom())
 }
 
 fn bw33() -> String {
