@@ -141,29 +141,26 @@ pub(crate) struct Snapshot {
 }
 
 impl Snapshot {
+    /// What the criteria see in a solved state (the base case; the searches fill theirs while
+    /// judging, see [`Thresholds::judge`]).
     pub fn capture(state: &FlowState) -> Snapshot {
-        let n = state.n_nodes();
-        let mut snapshot = Snapshot {
-            v_pu: vec![0.0; n],
-            i_pu: vec![0.0; n],
-            head_p_pu: 0.0,
-        };
-        snapshot.refill(state);
-        snapshot
-    }
-
-    pub fn refill(&mut self, state: &FlowState) {
-        let n = state.n_nodes();
         let (v_re, v_im) = (state.v_re(), state.v_im());
         let (j_re, j_im) = (state.j_re(), state.j_im());
-        for i in 0..n {
-            // sqrt of the sum of squares: no overflow is possible at per-unit magnitudes, and it
-            // is several times faster than hypot.
-            self.v_pu[i] = (v_re[i] * v_re[i] + v_im[i] * v_im[i]).sqrt();
-            self.i_pu[i] = (j_re[i] * j_re[i] + j_im[i] * j_im[i]).sqrt();
+        // sqrt of the sum of squares: no overflow is possible at per-unit magnitudes, and it is
+        // several times faster than hypot (and what judge computes).
+        let magnitude = |re: &[f64], im: &[f64]| -> Vec<f64> {
+            re.iter()
+                .zip(im)
+                .map(|(r, i)| (r * r + i * i).sqrt())
+                .collect()
+        };
+        let mut i_pu = magnitude(j_re, j_im);
+        i_pu[0] = 0.0;
+        Snapshot {
+            v_pu: magnitude(v_re, v_im),
+            i_pu,
+            head_p_pu: head_p_pu(state),
         }
-        self.i_pu[0] = 0.0;
-        self.head_p_pu = head_p_pu(state);
     }
 }
 
