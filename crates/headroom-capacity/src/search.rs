@@ -86,9 +86,9 @@ impl Outcome {
     }
 }
 
-/// Solves injections at one node; every solve starts from the scenario's base case, so the
-/// result at a given injection never depends on what was solved before (the fast and the
-/// stepped search see the same numbers).
+/// Solves injections at one node. Solves start from the injections solved before, but each
+/// verdict is settled at a tolerance that makes it independent of the start (see
+/// [`Evaluator::settle`]), so the fast and the stepped search see the same verdicts.
 struct Evaluator<'s, 'f> {
     study: &'s FeederStudy<'f>,
     case: &'s ScenarioCase,
