@@ -193,6 +193,23 @@ pub(crate) struct Thresholds {
 /// Nodes judged together by [`Thresholds::judge`].
 const LANES: usize = 4;
 
+/// How far a solved state's quantities are from their thresholds, pu.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Margins {
+    /// Smallest distance of any node voltage (or its change) to its thresholds.
+    pub voltage_pu: f64,
+    /// Smallest distance of any branch current to its thermal threshold, or of the head's
+    /// power to its reverse-flow threshold (1 MVA base).
+    pub flow_pu: f64,
+}
+
+impl Margins {
+    /// The smallest of all.
+    pub fn least_pu(self) -> f64 {
+        self.voltage_pu.min(self.flow_pu)
+    }
+}
+
 /// Running results of [`Thresholds::judge`], one accumulator per lane: a max or min reduction
 /// is not reordered by the compiler, so separate lanes are what lets it use vector registers.
 struct Scan {
@@ -204,8 +221,10 @@ struct Scan {
     under: [f64; LANES],
     moved: [f64; LANES],
     thermal: [f64; LANES],
-    /// Smallest distance of any quantity to its threshold.
-    margin: [f64; LANES],
+    /// Smallest distance of any voltage to its thresholds.
+    margin_v: [f64; LANES],
+    /// Smallest distance of any current to its threshold.
+    margin_i: [f64; LANES],
 }
 
 impl Scan {
@@ -218,7 +237,8 @@ impl Scan {
             under: [f64::MIN; LANES],
             moved: [f64::MIN; LANES],
             thermal: [f64::MIN; LANES],
-            margin: [f64::INFINITY; LANES],
+            margin_v: [f64::INFINITY; LANES],
+            margin_i: [f64::INFINITY; LANES],
         }
     }
 
@@ -264,11 +284,15 @@ impl Scan {
             let ab = if aa < ba { aa } else { ba };
             let cn = if ca < na { ca } else { na };
             let near = if ab < cn { ab } else { cn };
-            let near = if ea < near { ea } else { near };
-            self.margin[l] = if near < self.margin[l] {
+            self.margin_v[l] = if near < self.margin_v[l] {
                 near
             } else {
-                self.margin[l]
+                self.margin_v[l]
+            };
+            self.margin_i[l] = if ea < self.margin_i[l] {
+                ea
+            } else {
+                self.margin_i[l]
             };
         }
         (v, current)
@@ -329,10 +353,10 @@ impl Thresholds {
         self.th[i] = limit_pu.max(base_i_pu + WORSE_EPS_PU);
     }
 
-    /// Which criteria (bits) the solved state violates, and the smallest distance of any
-    /// quantity from its threshold (pu of voltage, current or power); `seen` is filled with
-    /// what the criteria see in that state. Convergence is judged by the caller.
-    pub fn judge(&self, state: &FlowState, seen: &mut Snapshot) -> (u8, f64) {
+    /// Which criteria (bits) the solved state violates, and how far the quantities are from
+    /// their thresholds; `seen` is filled with what the criteria see in that state.
+    /// Convergence is judged by the caller.
+    pub fn judge(&self, state: &FlowState, seen: &mut Snapshot) -> (u8, Margins) {
         let n = state.n_nodes();
         let (v_re, v_im) = (&state.v_re()[..n], &state.v_im()[..n]);
         let (j_re, j_im) = (&state.j_re()[..n], &state.j_im()[..n]);
@@ -381,7 +405,8 @@ impl Thresholds {
             under,
             moved,
             thermal,
-            margin,
+            margin_v,
+            margin_i,
             ..
         } = acc;
         let largest = |lanes: [f64; LANES]| lanes.into_iter().fold(f64::MIN, f64::max);
@@ -391,7 +416,11 @@ impl Thresholds {
             largest(moved),
             largest(thermal),
         );
-        let mut margin = margin.into_iter().fold(f64::INFINITY, f64::min);
+        let smallest = |lanes: [f64; LANES]| lanes.into_iter().fold(f64::INFINITY, f64::min);
+        let mut margins = Margins {
+            voltage_pu: smallest(margin_v),
+            flow_pu: smallest(margin_i),
+        };
         i_out[0] = 0.0;
         let head_p = head_p_pu(state);
         seen.head_p_pu = head_p;
@@ -403,9 +432,9 @@ impl Thresholds {
             if head_p < self.head_p_min_pu {
                 mask |= REVERSE;
             }
-            margin = margin.min((head_p - self.head_p_min_pu).abs());
+            margins.flow_pu = margins.flow_pu.min((head_p - self.head_p_min_pu).abs());
         }
-        (mask, margin)
+        (mask, margins)
     }
 
     /// Every (criterion, element) of `subset` in "upper" form: (limit, element, quantity,

@@ -7,8 +7,8 @@ use headroom_flow::{FlowState, Injection, SolveSettings, solve};
 use headroom_model::BusIdx;
 
 use crate::criteria::{
-    ALL, CHANGE, Element, Limit, OVER, REVERSE, Snapshot, THERMAL, UNDER, Watched, first_crossing,
-    predict_crossing_pu,
+    ALL, CHANGE, Element, Limit, Margins, OVER, REVERSE, Snapshot, THERMAL, UNDER, Watched,
+    first_crossing, predict_crossing_pu,
 };
 use crate::prepare::{FeederStudy, ScenarioCase};
 
@@ -78,6 +78,17 @@ enum Outcome {
     Converged(u8),
     /// The load flow did not converge: a failure under every criterion.
     Failed,
+}
+
+/// What a solve's result is for, which decides how tightly it is settled.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Purpose {
+    /// Only the verdict counts (the per-criterion searches and the stepped scan).
+    Verdict,
+    /// The snapshot may also locate the binding element between a pass and a failure, so it is
+    /// solved to the study's tolerance wherever a quantity is near its threshold: two searches
+    /// reaching the same injection from different starts then find the same element.
+    Crossing,
 }
 
 impl Outcome {
@@ -243,15 +254,15 @@ impl<'s, 'f> Evaluator<'s, 'f> {
     }
 
     /// Solves the injection of `p_kw`; a converged solution is kept as the last one.
-    fn solve_at(&mut self, p_kw: f64) -> Outcome {
+    fn solve_at(&mut self, p_kw: f64, purpose: Purpose) -> Outcome {
         let p_pu = self.study.network.kw_to_pu(p_kw);
         let from_solved = self.warm_start(p_pu);
-        let mut outcome = self.settle(p_pu);
+        let mut outcome = self.settle(p_pu, purpose);
         // A start extrapolated from other injections can be poor enough to send the sweep
         // astray; no solution is declared before a solve from the base case's start fails too.
         if outcome == Outcome::Failed && from_solved {
             self.start_from_base(p_pu);
-            outcome = self.settle(p_pu);
+            outcome = self.settle(p_pu, purpose);
         }
         self.load_flows += 1;
         if let Outcome::Converged(_) = outcome {
@@ -269,9 +280,9 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         outcome
     }
 
-    /// Solves the injection of `p_pu` from the start in `self.work` until its verdict is
-    /// settled.
-    fn settle(&mut self, p_pu: f64) -> Outcome {
+    /// Solves the injection of `p_pu` from the start in `self.work` until its verdict (and, for
+    /// [`Purpose::Crossing`], its snapshot) is settled.
+    fn settle(&mut self, p_pu: f64, purpose: Purpose) -> Outcome {
         let network = &self.study.network;
         let injection = [Injection {
             bus: self.bus,
@@ -284,22 +295,35 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         // Solve loosely first: when every quantity is far from its threshold compared with the
         // remaining error, the verdict is already the converged one. Otherwise go on to the
         // study's tolerance, and within a hair of a threshold to a tighter one still, so that
-        // verdicts do not depend on where the solve started.
+        // verdicts do not depend on where the solve started. A verdict alone also stands once
+        // every quantity is far from its threshold compared with the last sweep's change.
+        // An error δ in the voltages that feed a branch moves its current by up to the power
+        // it carries (pu) times δ, so the margin asked of currents and of the head's power
+        // grows with the demand and the plant.
+        let flow_per_voltage = 1.0 + self.case.demand_mva_pu + p_pu.hypot(p_pu * self.q_per_p);
+        let settled = |margins: Margins, mismatch_pu: f64, stage_margin_pu: f64| match purpose {
+            Purpose::Crossing => margins.least_pu() > stage_margin_pu,
+            Purpose::Verdict => {
+                let asked_pu = SETTLED_MARGIN_PER_CHANGE * mismatch_pu;
+                margins.voltage_pu > stage_margin_pu.min(asked_pu)
+                    && margins.flow_pu > stage_margin_pu.min(asked_pu * flow_per_voltage)
+            }
+        };
         let stages = [
             (LOOSE_TOL_PU.max(settings.tol_pu), SETTLED_MARGIN_PU),
             (settings.tol_pu, crate::criteria::NEAR_PU),
             (TIGHT_TOL_PU.min(settings.tol_pu), 0.0),
         ];
         let mut outcome = Outcome::Failed;
-        // The last sweep's largest change and the margin of the solution reached so far.
-        let mut reached: Option<(f64, f64)> = None;
+        // The last sweep's largest change and the margins of the solution reached so far.
+        let mut reached: Option<(f64, Margins)> = None;
         for (stage, &(tol_pu, settled_margin_pu)) in stages.iter().enumerate() {
             // A solution whose last sweep already moved less than this stage's tolerance is
             // where a solve to that tolerance would have stopped: judge it as it is.
-            if let Some((mismatch_pu, margin_pu)) = reached
+            if let Some((mismatch_pu, margins)) = reached
                 && mismatch_pu <= tol_pu
             {
-                if margin_pu > settled_margin_pu {
+                if settled(margins, mismatch_pu, settled_margin_pu) {
                     break;
                 }
                 continue;
@@ -311,12 +335,12 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             match solve(network, demand, &injection, &mut self.work, &stage_settings) {
                 Ok(converged) => {
                     self.sweep_iterations += converged.iterations;
-                    let (mask, margin_pu) = thresholds.judge(&self.work, &mut self.seen);
+                    let (mask, margins) = thresholds.judge(&self.work, &mut self.seen);
                     outcome = Outcome::Converged(mask);
-                    if margin_pu > settled_margin_pu {
+                    if settled(margins, converged.mismatch_pu, settled_margin_pu) {
                         break;
                     }
-                    reached = Some((converged.mismatch_pu, margin_pu));
+                    reached = Some((converged.mismatch_pu, margins));
                 }
                 // The tight stage may stall on rounding: keep the verdict of the study's
                 // tolerance then.
@@ -423,13 +447,13 @@ impl<'s, 'f> Evaluator<'s, 'f> {
     fn outcome(&mut self, p_kw: f64) -> Outcome {
         match self.outcomes.get(&p_kw.to_bits()) {
             Some(&outcome) => outcome,
-            None => self.solve_at(p_kw),
+            None => self.solve_at(p_kw, Purpose::Verdict),
         }
     }
 
     /// Solves at `p_kw` and captures what the criteria see (`None`: no solution).
-    fn point(&mut self, p_kw: f64) -> (Outcome, Option<Snapshot>) {
-        let outcome = self.solve_at(p_kw);
+    fn point(&mut self, p_kw: f64, purpose: Purpose) -> (Outcome, Option<Snapshot>) {
+        let outcome = self.solve_at(p_kw, purpose);
         let snapshot = match outcome {
             Outcome::Converged(_) => Some(self.seen.clone()),
             Outcome::Failed => None,
@@ -519,6 +543,13 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             mut hi,
         } = start;
         let to_steps = 1000.0 / self.resolution_kw; // pu → resolutions (1 MVA base)
+        // The search for every criterion together ends on the pass and failure that locate the
+        // binding element; the per-criterion searches need verdicts only.
+        let purpose = if subset == ALL {
+            Purpose::Crossing
+        } else {
+            Purpose::Verdict
+        };
         // Evaluations made while the answer was bracketed; past a few, predictions are not
         // closing in (a kink in the criteria, or no solution above) and bisection takes over.
         let mut bracketed_evaluations = 0;
@@ -577,7 +608,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             if hi.is_some() {
                 bracketed_evaluations += 1;
             }
-            let (outcome, snapshot) = self.point(self.kw(steps));
+            let (outcome, snapshot) = self.point(self.kw(steps), purpose);
             if outcome.passes(subset) {
                 let snap = snapshot.expect("a passing injection has converged");
                 older = below.take();
@@ -660,8 +691,15 @@ impl<'s, 'f> Evaluator<'s, 'f> {
 const LOOSE_TOL_PU: f64 = 1e-6;
 
 /// A verdict reached at [`LOOSE_TOL_PU`] stands when every quantity is at least this far from
-/// its threshold (pu): a hundred times the error left in such a solution.
+/// its threshold (pu): a hundred times that tolerance, see [`SETTLED_MARGIN_PER_CHANGE`].
 const SETTLED_MARGIN_PU: f64 = 1e-4;
+
+/// A verdict alone stands at any stage when every quantity is at least this many times the last
+/// sweep's largest voltage change from its threshold. The sweep shrinks its error by a factor
+/// ρ < 1 per sweep, so a solution whose last sweep moved it by δ is within about δ·ρ/(1 − ρ) of
+/// the converged one: under a hundredth of the margin while ρ < 0.99, the assumption
+/// [`SETTLED_MARGIN_PU`] makes of every solve at the loose tolerance.
+const SETTLED_MARGIN_PER_CHANGE: f64 = 100.0;
 
 /// Tolerance of the last stage, for verdicts within [`crate::criteria::NEAR_PU`] of a
 /// threshold, pu. Solutions reached from different starting points agree far closer than that
@@ -739,7 +777,7 @@ impl FeederStudy<'_> {
     ) -> (u8, Option<Snapshot>, u32) {
         let mut eval = Evaluator::new(self, s, bus);
         eval.q_per_p = q_per_p;
-        let (outcome, snapshot) = eval.point(p_kw);
+        let (outcome, snapshot) = eval.point(p_kw, Purpose::Crossing);
         let mask = match outcome {
             Outcome::Converged(mask) => mask,
             Outcome::Failed => 0,
@@ -849,14 +887,18 @@ impl FeederStudy<'_> {
                     let pass_snap = if steps == 0 {
                         case.snapshot.clone()
                     } else {
-                        eval.point(eval.kw(steps))
+                        eval.point(eval.kw(steps), Purpose::Crossing)
                             .1
                             .expect("a passing injection has converged")
                     };
                     // The first failing injection above the answer: one resolution up, or the
                     // failing step itself when steps are not multiples of the resolution.
                     let fail_kw = eval.kw(steps + 1).min(eval.first_failing_kw(steps));
-                    (steps, Some(pass_snap), Some(eval.point(fail_kw).1))
+                    (
+                        steps,
+                        Some(pass_snap),
+                        Some(eval.point(fail_kw, Purpose::Crossing).1),
+                    )
                 }
             }
         };
