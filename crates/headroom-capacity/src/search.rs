@@ -2,6 +2,7 @@
 //! search, the per-criterion capacities and the binding (criterion, element).
 
 use std::collections::HashMap;
+use std::rc::Rc;
 
 use headroom_flow::{FlowState, Injection, SolveSettings, solve};
 use headroom_model::BusIdx;
@@ -123,6 +124,10 @@ struct Evaluator<'s, 'f> {
     /// What the criteria saw in the last solve.
     seen: Snapshot,
     outcomes: HashMap<u64, Outcome>,
+    /// Every injection the fast searches solved (in resolutions), with its outcome and what
+    /// the criteria saw: each later per-criterion search starts from the tightest bracket
+    /// they give it.
+    visited: Vec<(u64, Outcome, Option<Rc<Snapshot>>)>,
     load_flows: u32,
     sweep_iterations: u32,
 }
@@ -238,6 +243,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             watched,
             seen: case.snapshot.clone(),
             outcomes: HashMap::new(),
+            visited: Vec::new(),
             load_flows: 0,
             sweep_iterations: 0,
         }
@@ -452,10 +458,10 @@ impl<'s, 'f> Evaluator<'s, 'f> {
     }
 
     /// Solves at `p_kw` and captures what the criteria see (`None`: no solution).
-    fn point(&mut self, p_kw: f64, purpose: Purpose) -> (Outcome, Option<Snapshot>) {
+    fn point(&mut self, p_kw: f64, purpose: Purpose) -> (Outcome, Option<Rc<Snapshot>>) {
         let outcome = self.solve_at(p_kw, purpose);
         let snapshot = match outcome {
-            Outcome::Converged(_) => Some(self.seen.clone()),
+            Outcome::Converged(_) => Some(Rc::new(self.seen.clone())),
             Outcome::Failed => None,
         };
         (outcome, snapshot)
@@ -609,6 +615,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                 bracketed_evaluations += 1;
             }
             let (outcome, snapshot) = self.point(self.kw(steps), purpose);
+            self.visited.push((steps, outcome, snapshot.clone()));
             if outcome.passes(subset) {
                 let snap = snapshot.expect("a passing injection has converged");
                 older = below.take();
@@ -617,6 +624,47 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             } else {
                 hi = Some((steps, snapshot));
             }
+        }
+    }
+
+    /// Where the fast search for `subset` alone starts, from every injection the fast searches
+    /// solved (and the base case, a pass at 0): the highest pass below the lowest failure of
+    /// `subset`, that failure when there is one, and the pass below it and the base case to
+    /// extrapolate from (the limit sought may lie well beyond the passes).
+    fn detail_start(&self, subset: u8, base: &Rc<Snapshot>) -> FastStart {
+        let failure = self
+            .visited
+            .iter()
+            .filter(|(_, outcome, _)| !outcome.passes(subset))
+            .min_by_key(|(steps, ..)| *steps);
+        let upper = failure.map_or(u64::MAX, |(steps, ..)| *steps);
+        let mut passes: Vec<(u64, &Rc<Snapshot>)> = self
+            .visited
+            .iter()
+            .filter(|(steps, outcome, _)| outcome.passes(subset) && *steps < upper)
+            .map(|(steps, _, snapshot)| {
+                let snapshot = snapshot
+                    .as_ref()
+                    .expect("a passing injection has converged");
+                (*steps, snapshot)
+            })
+            .collect();
+        passes.push((0, base));
+        passes.sort_by_key(|(steps, _)| std::cmp::Reverse(*steps));
+        passes.dedup_by_key(|(steps, _)| *steps);
+        let (lo, lo_snap) = passes[0];
+        let below = passes
+            .get(1)
+            .map(|(steps, snapshot)| (*steps, Rc::clone(snapshot)));
+        FastStart {
+            lo,
+            lo_snap: Rc::clone(lo_snap),
+            older: below
+                .as_ref()
+                .filter(|(steps, _)| *steps > 0)
+                .map(|_| (0, Rc::clone(base))),
+            below,
+            hi: failure.map(|(steps, _, snapshot)| (*steps, snapshot.clone())),
         }
     }
 
@@ -715,6 +763,10 @@ fn distance(a: f64, b: f64) -> f64 {
     if d.is_nan() { f64::INFINITY } else { d }
 }
 
+/// The order of the per-criterion searches (indexes into the voltage, thermal, change and
+/// reverse-flow capacities): each starts from the injections the ones before solved.
+const DETAIL_ORDER: [usize; 4] = [1, 2, 0, 3];
+
 /// Predicted evaluations allowed once the answer is bracketed, before bisecting.
 const MAX_PREDICTED_IN_BRACKET: u32 = 4;
 
@@ -752,16 +804,16 @@ fn two_bus_p_for_voltage(vs: f64, vr: f64, r: f64, x: f64, q_per_p: f64) -> f64 
 
 struct FastStart {
     lo: u64,
-    lo_snap: Snapshot,
-    below: Option<(u64, Snapshot)>,
-    older: Option<(u64, Snapshot)>,
-    hi: Option<(u64, Option<Snapshot>)>,
+    lo_snap: Rc<Snapshot>,
+    below: Option<(u64, Rc<Snapshot>)>,
+    older: Option<(u64, Rc<Snapshot>)>,
+    hi: Option<(u64, Option<Rc<Snapshot>>)>,
 }
 
 struct FastAnswer {
     lo: u64,
-    lo_snap: Snapshot,
-    hi: Option<(u64, Option<Snapshot>)>,
+    lo_snap: Rc<Snapshot>,
+    hi: Option<(u64, Option<Rc<Snapshot>>)>,
 }
 
 impl FeederStudy<'_> {
@@ -782,7 +834,7 @@ impl FeederStudy<'_> {
             Outcome::Converged(mask) => mask,
             Outcome::Failed => 0,
         };
-        (mask, snapshot, eval.load_flows)
+        (mask, snapshot.map(Rc::unwrap_or_clone), eval.load_flows)
     }
 
     /// The hosting capacity of `bus` in scenario `s` (an index into the study's scenarios).
@@ -821,18 +873,20 @@ impl FeederStudy<'_> {
 
         let (steps, pass_snap, fail) = match options.method {
             SearchMethod::Fast => {
+                let base_snap = Rc::new(case.snapshot.clone());
                 let answer = eval.fast(
                     ALL,
                     FastStart {
                         lo: 0,
-                        lo_snap: case.snapshot.clone(),
+                        lo_snap: base_snap.clone(),
                         below: None,
                         older: None,
                         hi: None,
                     },
                 );
                 if options.criteria_detail {
-                    for (slot, &(subset, on)) in detail.iter_mut().zip(&detail_subsets) {
+                    for k in DETAIL_ORDER {
+                        let (subset, on) = detail_subsets[k];
                         if !on {
                             continue;
                         }
@@ -840,29 +894,12 @@ impl FeederStudy<'_> {
                             // Capacity at max_kw, or no solution a resolution above it: the
                             // same under every criterion alone.
                             None | Some((_, None)) => answer.lo,
-                            Some((h, Some(h_snap))) => {
-                                if !eval.outcome(eval.kw(*h)).passes(subset) {
-                                    answer.lo
-                                } else {
-                                    eval.fast(
-                                        subset,
-                                        FastStart {
-                                            lo: *h,
-                                            lo_snap: h_snap.clone(),
-                                            // The parabola through the base case, the
-                                            // answer and the failure above it: the limits
-                                            // sought lie well beyond the answer.
-                                            below: Some((answer.lo, answer.lo_snap.clone())),
-                                            older: (answer.lo > 0)
-                                                .then(|| (0, case.snapshot.clone())),
-                                            hi: None,
-                                        },
-                                    )
-                                    .lo
-                                }
+                            Some(_) => {
+                                let start = eval.detail_start(subset, &base_snap);
+                                eval.fast(subset, start).lo
                             }
                         };
-                        *slot = Some(eval.kw(steps));
+                        detail[k] = Some(eval.kw(steps));
                     }
                 }
                 (
@@ -885,7 +922,7 @@ impl FeederStudy<'_> {
                     (steps, None, None)
                 } else {
                     let pass_snap = if steps == 0 {
-                        case.snapshot.clone()
+                        Rc::new(case.snapshot.clone())
                     } else {
                         eval.point(eval.kw(steps), Purpose::Crossing)
                             .1
