@@ -315,15 +315,33 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                     && margins.flow_pu > stage_margin_pu.min(asked_pu * flow_per_voltage)
             }
         };
+        // (tolerance, margin that settles a verdict there); `None`: the aimed stage below.
         let stages = [
-            (LOOSE_TOL_PU.max(settings.tol_pu), SETTLED_MARGIN_PU),
-            (settings.tol_pu, crate::criteria::NEAR_PU),
-            (TIGHT_TOL_PU.min(settings.tol_pu), 0.0),
+            Some((LOOSE_TOL_PU.max(settings.tol_pu), SETTLED_MARGIN_PU)),
+            None,
+            Some((settings.tol_pu, crate::criteria::NEAR_PU)),
+            Some((TIGHT_TOL_PU.min(settings.tol_pu), 0.0)),
         ];
+        let tight = stages.len() - 1;
         let mut outcome = Outcome::Failed;
         // The last sweep's largest change and the margins of the solution reached so far.
         let mut reached: Option<(f64, Margins)> = None;
-        for (stage, &(tol_pu, settled_margin_pu)) in stages.iter().enumerate() {
+        for (stage, &fixed) in stages.iter().enumerate() {
+            let (tol_pu, settled_margin_pu) = match (fixed, reached) {
+                (Some(fixed), _) => fixed,
+                // A verdict alone, not settled at the loose tolerance: solve on just until its
+                // margins are twice what a hundred times the last change asks, when that
+                // stops short of the study's tolerance.
+                (None, Some((mismatch_pu, margins))) if purpose == Purpose::Verdict => {
+                    let aim_pu = 0.5 * margins.voltage_pu.min(margins.flow_pu / flow_per_voltage)
+                        / SETTLED_MARGIN_PER_CHANGE;
+                    if !(aim_pu > settings.tol_pu && aim_pu < mismatch_pu) {
+                        continue;
+                    }
+                    (aim_pu, SETTLED_MARGIN_PU)
+                }
+                (None, _) => continue,
+            };
             // A solution whose last sweep already moved less than this stage's tolerance is
             // where a solve to that tolerance would have stopped: judge it as it is.
             if let Some((mismatch_pu, margins)) = reached
@@ -350,7 +368,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                 }
                 // The tight stage may stall on rounding: keep the verdict of the study's
                 // tolerance then.
-                Err(_) if stage == 2 => break,
+                Err(_) if stage == tight => break,
                 Err(failed) => {
                     self.sweep_iterations += failed.iterations;
                     outcome = Outcome::Failed;
