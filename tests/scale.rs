@@ -1,7 +1,8 @@
 //! Utility-scale runs: a `headroom map` killed part-way and started again finishes with nothing
-//! lost, nothing counted twice and no stray file; three shards run as separate processes give
-//! exactly the rows of one run; the shard of a Slurm job array or a Kubernetes Indexed Job is
-//! read from the environment as documented.
+//! lost, nothing counted twice and no stray file; a second process on the same share is refused
+//! while the first runs; three shards run as separate processes give exactly the rows of one
+//! run; the shard of a Slurm job array or a Kubernetes Indexed Job is read from the environment
+//! as documented.
 
 use std::collections::{BTreeMap, BTreeSet, HashMap};
 use std::ffi::OsStr;
@@ -272,6 +273,81 @@ fn a_run_killed_part_way_resumes_with_nothing_lost_or_doubled() {
     let stdout = map_ok(&region, &out, &[]);
     assert!(stdout.contains("nothing was mapped again"), "{stdout}");
     assert_eq!(std::fs::read(out.join("nodes.parquet")).unwrap(), before);
+}
+
+#[test]
+fn a_second_process_on_the_same_share_is_refused_while_the_first_runs() {
+    let dir = tempfile::tempdir().unwrap();
+    // Many feeders, so that the first run is still going while the others are refused.
+    let region = region(dir.path(), 24, 150, 13);
+    let out = dir.path().join("out");
+    let done = out.join(".headroom-work").join("done");
+    let mut first = map_command(&region, &out, &["--threads", "1"])
+        .stdout(Stdio::null())
+        .stderr(Stdio::null())
+        .spawn()
+        .expect("headroom can be started");
+    let deadline = Instant::now() + Duration::from_secs(300);
+    while std::fs::read_dir(&done).map_or(0, |d| d.count()) == 0 {
+        assert!(
+            first.try_wait().unwrap().is_none(),
+            "the first run ended before a second could be started beside it"
+        );
+        assert!(Instant::now() < deadline, "no feeder finished in time");
+        std::thread::sleep(Duration::from_millis(2));
+    }
+
+    // The same share: refused at once, naming the process that holds it.
+    let second = map_command(&region, &out, &["--threads", "1"])
+        .output()
+        .unwrap();
+    assert_eq!(second.status.code(), Some(2), "{}", describe(&second));
+    let message = String::from_utf8_lossy(&second.stderr);
+    assert!(message.contains("another headroom process"), "{message}");
+    assert!(
+        message.contains(&format!("process {}", first.id())),
+        "{message}"
+    );
+    // Another split with --fresh would delete the running split's files: refused too.
+    let fresh = map_command(&region, &out, &["--shard", "1/2", "--fresh"])
+        .output()
+        .unwrap();
+    assert_eq!(fresh.status.code(), Some(2), "{}", describe(&fresh));
+    let message = String::from_utf8_lossy(&fresh.stderr);
+    assert!(
+        message.contains("--fresh would delete its files"),
+        "{message}"
+    );
+    assert!(done.exists(), "the running split's work is untouched");
+    assert!(
+        first.try_wait().unwrap().is_none(),
+        "the first run ended while the others were refused: the region is too small to tell"
+    );
+
+    // Killed, the first run leaves its lock file but no lock: a new run of the share goes
+    // ahead (started over, the cheaper way) and leaves nothing but the results and the
+    // manifest.
+    first.kill().unwrap();
+    first.wait().unwrap();
+    assert!(out.join(".headroom-lock").exists());
+    map_ok(
+        &region,
+        &out,
+        &["--threads", "2", "--fresh", "--no-criteria-detail"],
+    );
+    assert_eq!(
+        names_in(&out),
+        [
+            "baseline.parquet",
+            "branches.parquet",
+            "feeders.parquet",
+            "nodes.parquet",
+            "run.json"
+        ]
+        .into_iter()
+        .map(String::from)
+        .collect(),
+    );
 }
 
 #[test]

@@ -110,6 +110,8 @@ pub fn run(args: &MapArgs) -> Result<(), Failure> {
             input_hash: &e.input_hash,
         })
         .collect();
+    // Held until the run ends: a second process on the same share of the region stops here.
+    let _lock = crate::workdir::lock(&layout)?;
     let done = match crate::workdir::start(&layout, &settings, &wanted, args.fresh)? {
         Start::Complete(records) => {
             print_summary(&records);

@@ -13,6 +13,10 @@
 //!   written in `staging/<feeder>/` and renamed, so a folder under `done/` is always whole), and
 //!   `staging/`. Part names do not start with `nodes`, so a glob `DIR/**/nodes*.parquet` never
 //!   counts a row twice.
+//! * `.headroom-lockSFX`: a small file naming the process that holds its lock (`flock`) while
+//!   it runs that share of the region, so that a second process started on the same share
+//!   stops at once; removed by that process when it ends (a killed run leaves it, unlocked, for
+//!   the next one).
 
 use std::collections::{BTreeMap, BTreeSet};
 use std::path::{Path, PathBuf};
@@ -26,6 +30,8 @@ use crate::Failure;
 pub const KINDS: [&str; 4] = ["nodes", "branches", "feeders", "baseline"];
 /// Name of the work folder, before the shard suffix.
 const WORK_PREFIX: &str = ".headroom-work";
+/// Name of the lock file, before the shard suffix.
+const LOCK_PREFIX: &str = ".headroom-lock";
 
 /// Settings a run's results depend on; a run resumes only with equal settings.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -163,6 +169,10 @@ impl Layout {
         self.out.join(self.manifest_name())
     }
 
+    pub fn lock_file(&self) -> PathBuf {
+        self.out.join(format!("{LOCK_PREFIX}{}", self.suffix()))
+    }
+
     pub fn work(&self) -> PathBuf {
         self.out.join(format!("{WORK_PREFIX}{}", self.suffix()))
     }
@@ -195,6 +205,124 @@ impl Layout {
         } else {
             Split::Shard(self.shard.index(), self.shard.count())
         }
+    }
+}
+
+/// This run's hold on its share of the output folder: while it lives, another process asking
+/// for the same share is refused. Dropping it removes the lock file and lets go.
+pub struct RunLock {
+    path: PathBuf,
+    /// `None` where the file system cannot lock (the run goes on unguarded).
+    file: Option<std::fs::File>,
+}
+
+impl Drop for RunLock {
+    fn drop(&mut self) {
+        // Removed while still held, so no other process can hold this file meanwhile; one that
+        // opened it before and locks it after checks that the name still leads to it.
+        if self.file.is_some() {
+            let _ = std::fs::remove_file(&self.path);
+        }
+    }
+}
+
+/// Whether `file` is the file `path` names now (same device and inode).
+fn still_named(file: &std::fs::File, path: &Path) -> bool {
+    use std::os::unix::fs::MetadataExt;
+    match (file.metadata(), std::fs::metadata(path)) {
+        (Ok(a), Ok(b)) => a.dev() == b.dev() && a.ino() == b.ino(),
+        _ => false,
+    }
+}
+
+/// Takes this run's lock in `layout.out` (creating the folder): refused (exit 2), naming the
+/// holder, while another process runs the same share of the region into the same folder.
+/// Where the file system has no locks (some network file systems), warns and goes on.
+#[allow(clippy::print_stderr)]
+pub fn lock(layout: &Layout) -> Result<RunLock, Failure> {
+    let out = &layout.out;
+    std::fs::create_dir_all(out).map_err(|e| io_failure("create folder", out, e))?;
+    let path = layout.lock_file();
+    loop {
+        let mut file = std::fs::OpenOptions::new()
+            .read(true)
+            .write(true)
+            .create(true)
+            .truncate(false)
+            .open(&path)
+            .map_err(|e| io_failure("create", &path, e))?;
+        match file.try_lock() {
+            Ok(()) => {
+                if !still_named(&file, &path) {
+                    // Removed by the run that held it as it ended: lock the new one.
+                    continue;
+                }
+                use std::io::Write;
+                let _ = file.set_len(0);
+                let _ = writeln!(file, "{}", holder_name());
+                return Ok(RunLock {
+                    path,
+                    file: Some(file),
+                });
+            }
+            Err(std::fs::TryLockError::WouldBlock) => {
+                let holder = std::fs::read_to_string(&path).unwrap_or_default();
+                let holder = holder.trim();
+                let holder = if holder.is_empty() {
+                    String::new()
+                } else {
+                    format!(" ({holder})")
+                };
+                return Err(Failure::Usage(format!(
+                    "another headroom process{holder} is running {} into {}: it holds {}. Wait \
+                     for it to end or stop it, or use another --out folder",
+                    describe(layout.own_split()),
+                    out.display(),
+                    path.display()
+                )));
+            }
+            Err(std::fs::TryLockError::Error(e)) => {
+                eprintln!(
+                    "warning: cannot lock {} ({e}); nothing stops a second process from \
+                     running {} into this folder at the same time",
+                    path.display(),
+                    describe(layout.own_split())
+                );
+                return Ok(RunLock { path, file: None });
+            }
+        }
+    }
+}
+
+/// The lock file name of `split`.
+fn lock_name(split: Split) -> String {
+    match split {
+        Split::Whole => LOCK_PREFIX.to_string(),
+        Split::Shard(i, n) => format!("{LOCK_PREFIX}-shard-{i}-of-{n}"),
+    }
+}
+
+/// Whether another process holds the lock at `path` now (false when there is no such file or
+/// the file system cannot lock).
+fn lock_is_held(path: &Path) -> bool {
+    let Ok(file) = std::fs::File::open(path) else {
+        return false;
+    };
+    matches!(
+        file.try_lock_shared(),
+        Err(std::fs::TryLockError::WouldBlock)
+    )
+}
+
+/// `process PID on HOST`, for the message a refused run prints.
+fn holder_name() -> String {
+    let host = std::fs::read_to_string("/proc/sys/kernel/hostname")
+        .ok()
+        .map(|h| h.trim().to_string())
+        .filter(|h| !h.is_empty());
+    match host {
+        Some(host) => format!("process {} on {host}", std::process::id()),
+        None => format!("process {}", std::process::id()),
     }
 }
 
@@ -327,6 +455,15 @@ pub fn start(
         };
         if !same_split {
             if fresh {
+                if lock_is_held(&out.join(lock_name(split))) {
+                    return Err(Failure::Usage(format!(
+                        "{} holds {name}, from {} that another headroom process is running \
+                         now; --fresh would delete its files. Wait for it to end, or use \
+                         another --out folder",
+                        out.display(),
+                        describe(split),
+                    )));
+                }
                 eprintln!("note: removing {} (another split of the region)", name);
                 remove_path(&out.join(name))?;
                 continue;
