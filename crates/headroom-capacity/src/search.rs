@@ -383,11 +383,13 @@ impl<'s, 'f> Evaluator<'s, 'f> {
     }
 
     /// Starts from the solved injections nearest to `p_pu` (the base case counts as solved at
-    /// 0): the parabola through the three nearest, or the line through two where a parabola
-    /// would be extrapolated beyond the span of its nodes — unless the base case is one of
-    /// the other two, the nearest two and the base case then (the curve's slope where it was
-    /// last solved, bent through the base case). With only the base case solved, see
-    /// [`Evaluator::start_from_base`]. Returns whether other solved injections were used.
+    /// 0): the parabola through the three nearest; where it would be extrapolated beyond the
+    /// span of its nodes, the parabola through the nearest two and the base case (the curve's
+    /// slope where it was last solved, bent through the base case), unless the base case is
+    /// one of the other two; and where that leaves two, the nearest one plus the plant's extra
+    /// current through the shared path impedance ([`start_from_solved`]). With only the base
+    /// case solved, see [`Evaluator::start_from_base`]. Returns whether other solved
+    /// injections were used.
     fn warm_start(&mut self, p_pu: f64) -> bool {
         let mut near = [(f64::NAN, &self.case.base); SOLVED_KEPT + 1];
         near[0] = (0.0, &self.case.base);
@@ -422,6 +424,19 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                 }
             }
         }
+        if count == 2 {
+            // Two points give a line, whose error grows with the square of the distance; the
+            // nearest one plus the plant's extra current through the shared path impedance
+            // misses only the loads' response to the change.
+            let plant = Plant {
+                k: self.bus.index(),
+                p_pu,
+                q_per_p: self.q_per_p,
+            };
+            let common = (&self.common_r_pu[..], &self.common_x_pu[..]);
+            start_from_solved(&mut self.work, &plant, picked[0], common);
+            return true;
+        }
         // Lagrange weights of the nodes picked.
         let mut w = [0.0; 3];
         for (j, wj) in w.iter_mut().enumerate().take(count) {
@@ -440,34 +455,20 @@ impl<'s, 'f> Evaluator<'s, 'f> {
     }
 
     /// Starts from the base case plus the linear voltage change of the plant's current through
-    /// the path impedance it shares with each node (superposition); the current is taken at
-    /// the plant's own voltage on the two-bus model of its path (a few fixed-point steps from
-    /// the base voltage).
+    /// the path impedance it shares with each node ([`start_from_solved`] anchored at 0).
     fn start_from_base(&mut self, p_pu: f64) {
-        let base = &self.case.base;
         let k = self.bus.index();
-        let (v0r, v0i) = (base.v_re()[k], base.v_im()[k]);
-        let (zr, zx) = (self.common_r_pu[k], self.common_x_pu[k]);
-        let (p, q) = (p_pu, p_pu * self.q_per_p);
-        // conj(S / V) for S = p + jq.
-        let current = |vr: f64, vi: f64| {
-            let inv = 1.0 / (vr * vr + vi * vi);
-            ((p * vr + q * vi) * inv, (p * vi - q * vr) * inv)
+        let plant = Plant {
+            k,
+            p_pu,
+            q_per_p: self.q_per_p,
         };
-        let (mut ir, mut ii) = current(v0r, v0i);
-        for _ in 0..3 {
-            let (nr, ni) = current(v0r + zr * ir - zx * ii, v0i + zr * ii + zx * ir);
-            if !(nr.is_finite() && ni.is_finite()) {
-                break;
-            }
-            (ir, ii) = (nr, ni);
-        }
-        let (common_r, common_x) = (&self.common_r_pu, &self.common_x_pu);
-        let (br, bi) = (base.v_re(), base.v_im());
-        self.work.set_voltages(|i| {
-            let (r, x) = (common_r[i], common_x[i]);
-            (br[i] + r * ir - x * ii, bi[i] + r * ii + x * ir)
-        });
+        start_from_solved(
+            &mut self.work,
+            &plant,
+            (0.0, &self.case.base),
+            (&self.common_r_pu, &self.common_x_pu),
+        );
     }
 
     /// The outcome at `p_kw`, solved once.
@@ -821,6 +822,50 @@ fn two_bus_p_for_voltage(vs: f64, vr: f64, r: f64, x: f64, q_per_p: f64) -> f64 
         .into_iter()
         .filter(|p| *p > 0.0)
         .fold(f64::INFINITY, f64::min)
+}
+
+/// The plant being solved: its node, its injection (pu) and its reactive power per unit of P.
+struct Plant {
+    k: usize,
+    p_pu: f64,
+    q_per_p: f64,
+}
+
+/// Sets `work` to a solved injection `anchor` (pu, solution) plus the linear voltage change of
+/// the plant's extra current through the path impedance it shares with each node
+/// (superposition; `common` holds those impedances, pu). The current is taken at the plant's
+/// own voltage on the two-bus model of its path (a few fixed-point steps from the anchor's).
+fn start_from_solved(
+    work: &mut FlowState,
+    plant: &Plant,
+    (anchor_p_pu, anchor): (f64, &FlowState),
+    (common_r, common_x): (&[f64], &[f64]),
+) {
+    let k = plant.k;
+    let (ar, ai) = (anchor.v_re(), anchor.v_im());
+    let (v0r, v0i) = (ar[k], ai[k]);
+    let (zr, zx) = (common_r[k], common_x[k]);
+    // conj(S / V) for S = p + jq.
+    let current = |p: f64, vr: f64, vi: f64| {
+        let q = p * plant.q_per_p;
+        let inv = 1.0 / (vr * vr + vi * vi);
+        ((p * vr + q * vi) * inv, (p * vi - q * vr) * inv)
+    };
+    let (i0r, i0i) = current(anchor_p_pu, v0r, v0i);
+    let (mut ir, mut ii) = current(plant.p_pu, v0r, v0i);
+    for _ in 0..3 {
+        let (dr, di) = (ir - i0r, ii - i0i);
+        let (nr, ni) = current(plant.p_pu, v0r + zr * dr - zx * di, v0i + zr * di + zx * dr);
+        if !(nr.is_finite() && ni.is_finite()) {
+            break;
+        }
+        (ir, ii) = (nr, ni);
+    }
+    let (dr, di) = (ir - i0r, ii - i0i);
+    work.set_voltages(|i| {
+        let (r, x) = (common_r[i], common_x[i]);
+        (ar[i] + r * dr - x * di, ai[i] + r * di + x * dr)
+    });
 }
 
 struct FastStart {
