@@ -292,15 +292,16 @@ impl<'s, 'f> Evaluator<'s, 'f> {
     /// Solves the injection of `p_pu` from the start in `self.work` until its verdict (and, for
     /// [`Purpose::Crossing`], its snapshot) is settled.
     fn settle(&mut self, p_pu: f64, purpose: Purpose) -> Outcome {
-        let network = &self.study.network;
+        let (study, case) = (self.study, self.case);
+        let network = &study.network;
         let injection = [Injection {
             bus: self.bus,
             p_pu,
             q_pu: p_pu * self.q_per_p,
         }];
-        let settings = &self.study.solve_settings;
-        let demand = &self.case.demand;
-        let thresholds = &self.case.thresholds;
+        let settings = &study.solve_settings;
+        let demand = &case.demand;
+        let thresholds = &case.thresholds;
         // Solve loosely first: when every quantity is far from its threshold compared with the
         // remaining error, the verdict is already the converged one. Otherwise go on to the
         // study's tolerance, and within a hair of a threshold to a tighter one still, so that
@@ -309,7 +310,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         // An error δ in the voltages that feed a branch moves its current by up to the power
         // it carries (pu) times δ, so the margin asked of currents and of the head's power
         // grows with the demand and the plant.
-        let flow_per_voltage = 1.0 + self.case.demand_mva_pu + p_pu.hypot(p_pu * self.q_per_p);
+        let flow_per_voltage = 1.0 + case.demand_mva_pu + p_pu.hypot(p_pu * self.q_per_p);
         let settled = |margins: Margins, mismatch_pu: f64, stage_margin_pu: f64| match purpose {
             Purpose::Crossing => margins.least_pu() > stage_margin_pu,
             Purpose::Verdict => {
@@ -345,11 +346,19 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                 }
                 (None, _) => continue,
             };
-            // A solution whose last sweep already moved less than this stage's tolerance is
-            // where a solve to that tolerance would have stopped: judge it as it is.
-            if let Some((mismatch_pu, margins)) = reached
+            // Within a hair of a threshold, the last bits of a solution depend on where it
+            // started, and so may the verdict: the tight stage solves again from the start of
+            // the base case, which depends on the injection alone, so that every search reaches
+            // the same numbers. Its state is kept in case that solve stalls on rounding.
+            let mut stalled_back = None;
+            if stage == tight {
+                stalled_back = Some(self.work.clone());
+                self.start_from_base(p_pu);
+            } else if let Some((mismatch_pu, margins)) = reached
                 && mismatch_pu <= tol_pu
             {
+                // A solution whose last sweep already moved less than this stage's tolerance
+                // is where a solve to that tolerance would have stopped: judge it as it is.
                 if settled(margins, mismatch_pu, settled_margin_pu) {
                     break;
                 }
@@ -369,9 +378,15 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                     }
                     reached = Some((converged.mismatch_pu, margins));
                 }
-                // The tight stage may stall on rounding: keep the verdict of the study's
-                // tolerance then.
-                Err(_) if stage == tight => break,
+                // The tight stage may stall on rounding: keep the solution and the verdict of
+                // the study's tolerance then.
+                Err(failed) if stage == tight => {
+                    self.sweep_iterations += failed.iterations;
+                    if let Some(back) = stalled_back {
+                        self.work = back;
+                    }
+                    break;
+                }
                 Err(failed) => {
                     self.sweep_iterations += failed.iterations;
                     outcome = Outcome::Failed;
@@ -382,75 +397,47 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         outcome
     }
 
-    /// Starts from the solved injections nearest to `p_pu` (the base case counts as solved at
-    /// 0): the parabola through the three nearest; where it would be extrapolated beyond the
-    /// span of its nodes, the parabola through the nearest two and the base case (the curve's
-    /// slope where it was last solved, bent through the base case), unless the base case is
-    /// one of the other two; and where that leaves two, the nearest one plus the plant's extra
-    /// current through the shared path impedance ([`start_from_solved`]). With only the base
-    /// case solved, see [`Evaluator::start_from_base`]. Returns whether other solved
-    /// injections were used.
+    /// Starts from the two solved injections nearest to `p_pu` (the base case counts as solved
+    /// at 0), by the secant through them in the plant's current ([`start_from_secant`]). With
+    /// only the base case solved, see [`Evaluator::start_from_base`]. Returns whether other
+    /// solved injections were used.
     fn warm_start(&mut self, p_pu: f64) -> bool {
-        let mut near = [(f64::NAN, &self.case.base); SOLVED_KEPT + 1];
-        near[0] = (0.0, &self.case.base);
-        for (slot, state) in self.solved.iter().enumerate() {
-            near[slot + 1] = (self.solved_p_pu[slot], state);
-        }
-        // Nearest first, empty slots last; an injection solved twice counts once.
-        near.sort_by(|a, b| distance(a.0, p_pu).total_cmp(&distance(b.0, p_pu)));
-        let mut picked = [near[0]; 3];
-        let mut count = 0;
-        for &(q, state) in &near {
-            if count < 3 && q.is_finite() && picked[..count].iter().all(|(o, _)| *o != q) {
-                picked[count] = (q, state);
-                count += 1;
+        let mut nearest: [Option<(f64, &FlowState)>; 2] = [None, None];
+        let candidates = std::iter::once((0.0, &self.case.base)).chain(
+            self.solved
+                .iter()
+                .enumerate()
+                .map(|(slot, state)| (self.solved_p_pu[slot], state)),
+        );
+        for (q, state) in candidates {
+            // An injection solved twice counts once.
+            if q.is_nan() || nearest.iter().flatten().any(|(o, _)| *o == q) {
+                continue;
+            }
+            let d = (q - p_pu).abs();
+            match nearest {
+                [None, _] => nearest[0] = Some((q, state)),
+                [Some((a, _)), _] if d < (a - p_pu).abs() => {
+                    nearest = [Some((q, state)), nearest[0]];
+                }
+                [_, None] => nearest[1] = Some((q, state)),
+                [_, Some((b, _))] if d < (b - p_pu).abs() => nearest[1] = Some((q, state)),
+                _ => {}
             }
         }
-        if count < 2 {
+        let [Some(near), Some(other)] = nearest else {
+            self.start_from_base(p_pu);
+            return false;
+        };
+        let plant = Plant {
+            k: self.bus.index(),
+            p_pu,
+            q_per_p: self.q_per_p,
+        };
+        if !start_from_secant(&mut self.work, &plant, near, other) {
             self.start_from_base(p_pu);
             return false;
         }
-        if count == 3 {
-            let (lowest, highest) = picked
-                .iter()
-                .fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), (q, _)| {
-                    (l.min(*q), h.max(*q))
-                });
-            if (p_pu - picked[0].0).abs() > highest - lowest {
-                if picked[0].0 != 0.0 && picked[1].0 != 0.0 {
-                    picked[2] = (0.0, &self.case.base);
-                } else {
-                    count = 2;
-                }
-            }
-        }
-        if count == 2 {
-            // Two points give a line, whose error grows with the square of the distance; the
-            // nearest one plus the plant's extra current through the shared path impedance
-            // misses only the loads' response to the change.
-            let plant = Plant {
-                k: self.bus.index(),
-                p_pu,
-                q_per_p: self.q_per_p,
-            };
-            let common = (&self.common_r_pu[..], &self.common_x_pu[..]);
-            start_from_solved(&mut self.work, &plant, picked[0], common);
-            return true;
-        }
-        // Lagrange weights of the nodes picked.
-        let mut w = [0.0; 3];
-        for (j, wj) in w.iter_mut().enumerate().take(count) {
-            *wj = (0..count)
-                .filter(|&m| m != j)
-                .map(|m| (p_pu - picked[m].0) / (picked[j].0 - picked[m].0))
-                .product();
-        }
-        let parts = [
-            (w[0], picked[0].1),
-            (w[1], picked[1].1),
-            (w[2], picked[2].1),
-        ];
-        self.work.set_combination(&parts[..count]);
         true
     }
 
@@ -779,12 +766,6 @@ const TIGHT_TOL_PU: f64 = 1e-12;
 /// Converged injections kept for warm starts.
 const SOLVED_KEPT: usize = 4;
 
-/// Distance between two injections, NaN (an empty slot) farthest.
-fn distance(a: f64, b: f64) -> f64 {
-    let d = (a - b).abs();
-    if d.is_nan() { f64::INFINITY } else { d }
-}
-
 /// The order of the per-criterion searches (indexes into the voltage, thermal, change and
 /// reverse-flow capacities): each starts from the injections the ones before solved.
 const DETAIL_ORDER: [usize; 4] = [1, 2, 0, 3];
@@ -866,6 +847,61 @@ fn start_from_solved(
         let (r, x) = (common_r[i], common_x[i]);
         (ar[i] + r * dr - x * di, ai[i] + r * di + x * dr)
     });
+}
+
+/// Sets `work` to the secant through two solved injections `near` and `other` (pu, solution)
+/// taken in the plant's current rather than its power: each node moves from `near` by the
+/// change between the two solutions times the ratio of the plant's current changes (complex).
+/// The network answers the plant's current almost linearly (loads included), so this keeps the
+/// loads' response the two solutions show, and the bend of the plant's own current P/V that a
+/// line in P misses. The current at `plant.p_pu` is taken at the voltage this start gives its
+/// node (a few fixed-point steps).
+fn start_from_secant(
+    work: &mut FlowState,
+    plant: &Plant,
+    (near_p_pu, near): (f64, &FlowState),
+    (other_p_pu, other): (f64, &FlowState),
+) -> bool {
+    let k = plant.k;
+    let current = |p: f64, vr: f64, vi: f64| {
+        let q = p * plant.q_per_p;
+        let inv = 1.0 / (vr * vr + vi * vi);
+        ((p * vr + q * vi) * inv, (p * vi - q * vr) * inv)
+    };
+    let (nr, ni) = (near.v_re(), near.v_im());
+    let (or, oi) = (other.v_re(), other.v_im());
+    let (i0r, i0i) = current(near_p_pu, nr[k], ni[k]);
+    let (i1r, i1i) = current(other_p_pu, or[k], oi[k]);
+    let (sr, si) = (i0r - i1r, i0i - i1i);
+    let s2 = sr * sr + si * si;
+    if !(s2 > 0.0 && s2.is_finite()) {
+        return false;
+    }
+    // r = (I − I0) / (I0 − I1).
+    let ratio = |ir: f64, ii: f64| {
+        let (dr, di) = (ir - i0r, ii - i0i);
+        ((dr * sr + di * si) / s2, (di * sr - dr * si) / s2)
+    };
+    let (dkr, dki) = (nr[k] - or[k], ni[k] - oi[k]);
+    let (mut ir, mut ii) = current(plant.p_pu, nr[k], ni[k]);
+    for _ in 0..4 {
+        let (rr, ri) = ratio(ir, ii);
+        let (vr, vi) = (nr[k] + dkr * rr - dki * ri, ni[k] + dkr * ri + dki * rr);
+        let (cr, ci) = current(plant.p_pu, vr, vi);
+        if !(cr.is_finite() && ci.is_finite()) {
+            break;
+        }
+        (ir, ii) = (cr, ci);
+    }
+    let (rr, ri) = ratio(ir, ii);
+    if !(rr.is_finite() && ri.is_finite()) {
+        return false;
+    }
+    work.set_voltages(|i| {
+        let (dr, di) = (nr[i] - or[i], ni[i] - oi[i]);
+        (nr[i] + dr * rr - di * ri, ni[i] + dr * ri + di * rr)
+    });
+    true
 }
 
 struct FastStart {
