@@ -133,35 +133,6 @@ impl FlowState {
         }
     }
 
-    /// Sets every node voltage to the weighted sum `Σ w·V` of two or three other states of the
-    /// same network (a warm start extrapolated from solved ones). Currents are recomputed by the
-    /// next solve.
-    ///
-    /// # Panics
-    /// Unless two or three states of this size are given.
-    pub fn set_combination(&mut self, parts: &[(f64, &FlowState)]) {
-        let n = self.v_re.len();
-        let out = self.v_re.iter_mut().zip(self.v_im.iter_mut());
-        match *parts {
-            [(wa, a), (wb, b)] => {
-                let (ar, ai, br, bi) = (&a.v_re[..n], &a.v_im[..n], &b.v_re[..n], &b.v_im[..n]);
-                for (i, (re, im)) in out.enumerate() {
-                    *re = wa * ar[i] + wb * br[i];
-                    *im = wa * ai[i] + wb * bi[i];
-                }
-            }
-            [(wa, a), (wb, b), (wc, c)] => {
-                let (ar, ai, br, bi) = (&a.v_re[..n], &a.v_im[..n], &b.v_re[..n], &b.v_im[..n]);
-                let (cr, ci) = (&c.v_re[..n], &c.v_im[..n]);
-                for (i, (re, im)) in out.enumerate() {
-                    *re = wa * ar[i] + wb * br[i] + wc * cr[i];
-                    *im = wa * ai[i] + wb * bi[i] + wc * ci[i];
-                }
-            }
-            _ => panic!("a combination of two or three states"),
-        }
-    }
-
     /// Number of nodes.
     pub fn n_nodes(&self) -> usize {
         self.v_re.len()

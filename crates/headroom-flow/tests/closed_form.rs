@@ -212,29 +212,3 @@ fn the_head_slot_holds_the_current_of_all_head_branches() {
         "{p_pu} vs {p_head_kw} kW"
     );
 }
-
-#[test]
-fn a_combination_of_states_is_their_weighted_sum() {
-    let feeder = two_bus(11.0, 1.6, 1.75, 3000.0, 1000.0, 1.0);
-    let (network, light) = solve_two_bus(&feeder, &[]);
-    let heavy = {
-        let extra = [Injection {
-            bus: BusIdx::new(1),
-            p_pu: -1.0,
-            q_pu: -0.2,
-        }];
-        solve_two_bus(&feeder, &extra).1
-    };
-    let mut start = FlowState::flat(&network);
-    // The line through two states, evaluated beyond the second: 2·heavy − light.
-    start.set_combination(&[(-1.0, &light), (2.0, &heavy)]);
-    let v = |s: &FlowState| (s.v_re()[1], s.v_im()[1]);
-    let expected = (
-        2.0 * v(&heavy).0 - v(&light).0,
-        2.0 * v(&heavy).1 - v(&light).1,
-    );
-    assert!((v(&start).0 - expected.0).abs() < 1e-15 && (v(&start).1 - expected.1).abs() < 1e-15);
-    // Three states with weights summing to one reproduce a state that all three equal.
-    start.set_combination(&[(0.5, &light), (0.25, &light), (0.25, &light)]);
-    assert!((v(&start).0 - v(&light).0).abs() < 1e-15);
-}
