@@ -559,18 +559,31 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         } = start;
         let to_steps = 1000.0 / self.resolution_kw; // pu → resolutions (1 MVA base)
         // The search for every criterion together ends on the pass and failure that locate the
-        // binding element; the per-criterion searches need verdicts only.
+        // binding element; the per-criterion searches need verdicts only. Its first evaluation,
+        // from the node's model alone, is seldom one of those two: it is solved for its verdict,
+        // and solved on if it ends the search after all.
         let purpose = if subset == ALL {
             Purpose::Crossing
         } else {
             Purpose::Verdict
         };
+        let mut verdict_only: Option<u64> = None;
         // Evaluations made while the answer was bracketed; past a few, predictions are not
         // closing in (a kink in the criteria, or no solution above) and bisection takes over.
         let mut bracketed_evaluations = 0;
         loop {
             let upper = hi.as_ref().map_or(self.max_steps + 1, |(h, _)| *h);
             if lo >= self.max_steps || upper == lo + 1 {
+                if let Some(first) = verdict_only {
+                    if first == lo {
+                        let (_, snapshot) = self.point(self.kw(lo), Purpose::Crossing);
+                        lo_snap = snapshot.expect("a passing injection converges again");
+                    } else if let Some((h, h_snap @ Some(_))) = &mut hi
+                        && *h == first
+                    {
+                        *h_snap = self.point(self.kw(first), Purpose::Crossing).1;
+                    }
+                }
                 return FastAnswer { lo, lo_snap, hi };
             }
             let lo_pu = self.kw(lo) / 1000.0;
@@ -623,6 +636,12 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             if hi.is_some() {
                 bracketed_evaluations += 1;
             }
+            let purpose = if purpose == Purpose::Crossing && self.visited.is_empty() {
+                verdict_only = Some(steps);
+                Purpose::Verdict
+            } else {
+                purpose
+            };
             let (outcome, snapshot) = self.point(self.kw(steps), purpose);
             self.visited.push((steps, outcome, snapshot.clone()));
             if outcome.passes(subset) {
