@@ -169,6 +169,7 @@ impl Layout {
         self.out.join(self.manifest_name())
     }
 
+    /// `.headroom-lockSFX`.
     pub fn lock_file(&self) -> PathBuf {
         self.out.join(format!("{LOCK_PREFIX}{}", self.suffix()))
     }
@@ -227,12 +228,19 @@ impl Drop for RunLock {
 }
 
 /// Whether `file` is the file `path` names now (same device and inode).
+#[cfg(unix)]
 fn still_named(file: &std::fs::File, path: &Path) -> bool {
     use std::os::unix::fs::MetadataExt;
     match (file.metadata(), std::fs::metadata(path)) {
         (Ok(a), Ok(b)) => a.dev() == b.dev() && a.ino() == b.ino(),
         _ => false,
     }
+}
+
+/// Elsewhere an open file cannot be removed, so the name still leads to it.
+#[cfg(not(unix))]
+fn still_named(_file: &std::fs::File, path: &Path) -> bool {
+    path.exists()
 }
 
 /// Takes this run's lock in `layout.out` (creating the folder): refused (exit 2), naming the
