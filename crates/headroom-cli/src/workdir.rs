@@ -237,7 +237,7 @@ fn still_named(file: &std::fs::File, path: &Path) -> bool {
     }
 }
 
-/// Elsewhere an open file cannot be removed, so the name still leads to it.
+/// Elsewhere there is no inode to compare: the name is taken to lead to the file while it exists.
 #[cfg(not(unix))]
 fn still_named(_file: &std::fs::File, path: &Path) -> bool {
     path.exists()
