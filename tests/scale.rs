@@ -49,6 +49,15 @@ fn map_ok(region: &Path, out: &Path, extra: &[&str]) -> String {
     String::from_utf8(output.stdout).expect("stdout is UTF-8")
 }
 
+/// Runs `headroom map`, expects a refusal (exit 2) and returns its message.
+fn map_refused(region: &Path, out: &Path, extra: &[&str]) -> String {
+    let output = map_command(region, out, extra)
+        .output()
+        .expect("headroom can be started");
+    assert_eq!(output.status.code(), Some(2), "{}", describe(&output));
+    String::from_utf8_lossy(&output.stderr).into_owned()
+}
+
 /// A synthetic region of `n_feeders` feeders of `n_nodes` nodes below `dir`.
 fn region(dir: &Path, n_feeders: u32, n_nodes: u32, seed: u32) -> PathBuf {
     let region = dir.join("region");
@@ -163,6 +172,45 @@ fn names_in(dir: &Path) -> BTreeSet<String> {
         .collect()
 }
 
+/// The folder of a finished whole-region run holds its four tables and its manifest, and
+/// nothing else (no work folder, lock or temporary file).
+fn assert_only_results_and_manifest(out: &Path) {
+    let expected: BTreeSet<String> = TABLES
+        .iter()
+        .copied()
+        .chain(["run.json"])
+        .map(String::from)
+        .collect();
+    assert_eq!(
+        names_in(out),
+        expected,
+        "nothing but the results and the manifest is left"
+    );
+}
+
+/// `headroom map` started in the background, its output thrown away.
+fn spawn_quiet(region: &Path, out: &Path, extra: &[&str]) -> std::process::Child {
+    map_command(region, out, extra)
+        .stdout(Stdio::null())
+        .stderr(Stdio::null())
+        .spawn()
+        .expect("headroom can be started")
+}
+
+/// Waits until the run `child` writing into `done` has finished `at_least` feeders; fails if it
+/// ends first.
+fn wait_for_done_feeders(child: &mut std::process::Child, done: &Path, at_least: usize) {
+    let deadline = Instant::now() + Duration::from_secs(300);
+    while std::fs::read_dir(done).map_or(0, |d| d.count()) < at_least {
+        assert!(
+            child.try_wait().unwrap().is_none(),
+            "the run ended before {at_least} feeder(s) were done"
+        );
+        assert!(Instant::now() < deadline, "no feeder finished in time");
+        std::thread::sleep(Duration::from_millis(2));
+    }
+}
+
 fn assert_one_row_per_key(rows: &[NodeRow], expected: usize) {
     let keys: BTreeSet<(&str, &str, &str)> = rows
         .iter()
@@ -190,24 +238,8 @@ fn a_run_killed_part_way_resumes_with_nothing_lost_or_doubled() {
 
     let out = dir.path().join("killed");
     let done = out.join(".headroom-work").join("done");
-    let mut child = map_command(&region, &out, &["--threads", "1"])
-        .stdout(Stdio::null())
-        .stderr(Stdio::null())
-        .spawn()
-        .expect("headroom can be started");
-    let deadline = Instant::now() + Duration::from_secs(300);
-    loop {
-        let n_done = std::fs::read_dir(&done).map_or(0, |d| d.count());
-        if n_done >= 3 {
-            break;
-        }
-        assert!(
-            child.try_wait().unwrap().is_none(),
-            "the run ended before it could be stopped"
-        );
-        assert!(Instant::now() < deadline, "no feeder finished in time");
-        std::thread::sleep(Duration::from_millis(2));
-    }
+    let mut child = spawn_quiet(&region, &out, &["--threads", "1"]);
+    wait_for_done_feeders(&mut child, &done, 3);
     child.kill().unwrap();
     child.wait().unwrap();
 
@@ -223,11 +255,7 @@ fn a_run_killed_part_way_resumes_with_nothing_lost_or_doubled() {
         "no nodes*.parquet before the end"
     );
     // Other settings: refused, and nothing touched.
-    let refused = map_command(&region, &out, &["--search", "stepped"])
-        .output()
-        .unwrap();
-    assert_eq!(refused.status.code(), Some(2), "{}", describe(&refused));
-    let message = String::from_utf8_lossy(&refused.stderr);
+    let message = map_refused(&region, &out, &["--search", "stepped"]);
     assert!(message.contains("other settings"), "{message}");
     assert!(message.contains("--fresh"), "{message}");
     assert_eq!(std::fs::read_dir(&done).unwrap().count(), n_done_at_kill);
@@ -243,20 +271,7 @@ fn a_run_killed_part_way_resumes_with_nothing_lost_or_doubled() {
         )),
         "{stdout}"
     );
-    assert_eq!(
-        names_in(&out),
-        [
-            "baseline.parquet",
-            "branches.parquet",
-            "feeders.parquet",
-            "nodes.parquet",
-            "run.json"
-        ]
-        .into_iter()
-        .map(String::from)
-        .collect(),
-        "nothing but the results and the manifest is left"
-    );
+    assert_only_results_and_manifest(&out);
     let rows = node_rows(&out);
     assert_one_row_per_key(&rows, n_feeders as usize * 2 * (n_nodes as usize - 1));
     assert_eq!(rows, node_rows(&clean));
@@ -282,38 +297,18 @@ fn a_second_process_on_the_same_share_is_refused_while_the_first_runs() {
     let region = region(dir.path(), 24, 150, 13);
     let out = dir.path().join("out");
     let done = out.join(".headroom-work").join("done");
-    let mut first = map_command(&region, &out, &["--threads", "1"])
-        .stdout(Stdio::null())
-        .stderr(Stdio::null())
-        .spawn()
-        .expect("headroom can be started");
-    let deadline = Instant::now() + Duration::from_secs(300);
-    while std::fs::read_dir(&done).map_or(0, |d| d.count()) == 0 {
-        assert!(
-            first.try_wait().unwrap().is_none(),
-            "the first run ended before a second could be started beside it"
-        );
-        assert!(Instant::now() < deadline, "no feeder finished in time");
-        std::thread::sleep(Duration::from_millis(2));
-    }
+    let mut first = spawn_quiet(&region, &out, &["--threads", "1"]);
+    wait_for_done_feeders(&mut first, &done, 1);
 
     // The same share: refused at once, naming the process that holds it.
-    let second = map_command(&region, &out, &["--threads", "1"])
-        .output()
-        .unwrap();
-    assert_eq!(second.status.code(), Some(2), "{}", describe(&second));
-    let message = String::from_utf8_lossy(&second.stderr);
+    let message = map_refused(&region, &out, &["--threads", "1"]);
     assert!(message.contains("another headroom process"), "{message}");
     assert!(
         message.contains(&format!("process {}", first.id())),
         "{message}"
     );
     // Another split with --fresh would delete the running split's files: refused too.
-    let fresh = map_command(&region, &out, &["--shard", "1/2", "--fresh"])
-        .output()
-        .unwrap();
-    assert_eq!(fresh.status.code(), Some(2), "{}", describe(&fresh));
-    let message = String::from_utf8_lossy(&fresh.stderr);
+    let message = map_refused(&region, &out, &["--shard", "1/2", "--fresh"]);
     assert!(
         message.contains("--fresh would delete its files"),
         "{message}"
@@ -335,19 +330,7 @@ fn a_second_process_on_the_same_share_is_refused_while_the_first_runs() {
         &out,
         &["--threads", "2", "--fresh", "--no-criteria-detail"],
     );
-    assert_eq!(
-        names_in(&out),
-        [
-            "baseline.parquet",
-            "branches.parquet",
-            "feeders.parquet",
-            "nodes.parquet",
-            "run.json"
-        ]
-        .into_iter()
-        .map(String::from)
-        .collect(),
-    );
+    assert_only_results_and_manifest(&out);
 }
 
 #[test]
