@@ -84,7 +84,8 @@ enum Outcome {
 /// What a solve's result is for, which decides how tightly it is settled.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 enum Purpose {
-    /// Only the verdict counts (the per-criterion searches and the stepped scan).
+    /// Only the verdict counts (the per-criterion searches, the stepped scan, the first solve
+    /// of the search for all criteria).
     Verdict,
     /// The snapshot may also locate the binding element between a pass and a failure, so it is
     /// solved to the study's tolerance wherever a quantity is near its threshold: two searches
