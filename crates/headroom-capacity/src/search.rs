@@ -443,20 +443,32 @@ impl<'s, 'f> Evaluator<'s, 'f> {
     }
 
     /// Starts from the base case plus the linear voltage change of the plant's current through
-    /// the path impedance it shares with each node ([`start_from_solved`] anchored at 0).
+    /// the path impedance it shares with each node (superposition). The current is taken at the
+    /// plant's own voltage on the two-bus model of its path (a few fixed-point steps from the
+    /// base voltage).
     fn start_from_base(&mut self, p_pu: f64) {
-        let k = self.bus.index();
         let plant = Plant {
-            k,
+            k: self.bus.index(),
             p_pu,
             q_per_p: self.q_per_p,
         };
-        start_from_solved(
-            &mut self.work,
-            &plant,
-            (0.0, &self.case.base),
-            (&self.common_r_pu, &self.common_x_pu),
-        );
+        let base = &self.case.base;
+        let (common_r, common_x) = (&self.common_r_pu, &self.common_x_pu);
+        let (br, bi) = (base.v_re(), base.v_im());
+        let k = plant.k;
+        let (zr, zx) = (common_r[k], common_x[k]);
+        let (mut ir, mut ii) = plant.current(br[k], bi[k]);
+        for _ in 0..3 {
+            let (nr, ni) = plant.current(br[k] + zr * ir - zx * ii, bi[k] + zr * ii + zx * ir);
+            if !(nr.is_finite() && ni.is_finite()) {
+                break;
+            }
+            (ir, ii) = (nr, ni);
+        }
+        self.work.set_voltages(|i| {
+            let (r, x) = (common_r[i], common_x[i]);
+            (br[i] + r * ir - x * ii, bi[i] + r * ii + x * ir)
+        });
     }
 
     /// The outcome at `p_kw`, solved once.
@@ -832,41 +844,18 @@ struct Plant {
     q_per_p: f64,
 }
 
-/// Sets `work` to a solved injection `anchor` (pu, solution) plus the linear voltage change of
-/// the plant's extra current through the path impedance it shares with each node
-/// (superposition; `common` holds those impedances, pu). The current is taken at the plant's
-/// own voltage on the two-bus model of its path (a few fixed-point steps from the anchor's).
-fn start_from_solved(
-    work: &mut FlowState,
-    plant: &Plant,
-    (anchor_p_pu, anchor): (f64, &FlowState),
-    (common_r, common_x): (&[f64], &[f64]),
-) {
-    let k = plant.k;
-    let (ar, ai) = (anchor.v_re(), anchor.v_im());
-    let (v0r, v0i) = (ar[k], ai[k]);
-    let (zr, zx) = (common_r[k], common_x[k]);
-    // conj(S / V) for S = p + jq.
-    let current = |p: f64, vr: f64, vi: f64| {
-        let q = p * plant.q_per_p;
-        let inv = 1.0 / (vr * vr + vi * vi);
-        ((p * vr + q * vi) * inv, (p * vi - q * vr) * inv)
-    };
-    let (i0r, i0i) = current(anchor_p_pu, v0r, v0i);
-    let (mut ir, mut ii) = current(plant.p_pu, v0r, v0i);
-    for _ in 0..3 {
-        let (dr, di) = (ir - i0r, ii - i0i);
-        let (nr, ni) = current(plant.p_pu, v0r + zr * dr - zx * di, v0i + zr * di + zx * dr);
-        if !(nr.is_finite() && ni.is_finite()) {
-            break;
-        }
-        (ir, ii) = (nr, ni);
+impl Plant {
+    /// The current it injects at node voltage `vr + j·vi`: conj(S / V), S = P + jQ (pu).
+    fn current(&self, vr: f64, vi: f64) -> (f64, f64) {
+        current_of(self.p_pu, self.q_per_p, vr, vi)
     }
-    let (dr, di) = (ir - i0r, ii - i0i);
-    work.set_voltages(|i| {
-        let (r, x) = (common_r[i], common_x[i]);
-        (ar[i] + r * dr - x * di, ai[i] + r * di + x * dr)
-    });
+}
+
+/// conj(S / V) for S = p·(1 + j·`q_per_p`) at voltage `vr + j·vi` (pu).
+fn current_of(p: f64, q_per_p: f64, vr: f64, vi: f64) -> (f64, f64) {
+    let q = p * q_per_p;
+    let inv = 1.0 / (vr * vr + vi * vi);
+    ((p * vr + q * vi) * inv, (p * vi - q * vr) * inv)
 }
 
 /// Sets `work` to the secant through two solved injections `near` and `other` (pu, solution)
@@ -883,15 +872,10 @@ fn start_from_secant(
     (other_p_pu, other): (f64, &FlowState),
 ) -> bool {
     let k = plant.k;
-    let current = |p: f64, vr: f64, vi: f64| {
-        let q = p * plant.q_per_p;
-        let inv = 1.0 / (vr * vr + vi * vi);
-        ((p * vr + q * vi) * inv, (p * vi - q * vr) * inv)
-    };
     let (nr, ni) = (near.v_re(), near.v_im());
     let (or, oi) = (other.v_re(), other.v_im());
-    let (i0r, i0i) = current(near_p_pu, nr[k], ni[k]);
-    let (i1r, i1i) = current(other_p_pu, or[k], oi[k]);
+    let (i0r, i0i) = current_of(near_p_pu, plant.q_per_p, nr[k], ni[k]);
+    let (i1r, i1i) = current_of(other_p_pu, plant.q_per_p, or[k], oi[k]);
     let (sr, si) = (i0r - i1r, i0i - i1i);
     let s2 = sr * sr + si * si;
     if !(s2 > 0.0 && s2.is_finite()) {
@@ -903,11 +887,11 @@ fn start_from_secant(
         ((dr * sr + di * si) / s2, (di * sr - dr * si) / s2)
     };
     let (dkr, dki) = (nr[k] - or[k], ni[k] - oi[k]);
-    let (mut ir, mut ii) = current(plant.p_pu, nr[k], ni[k]);
+    let (mut ir, mut ii) = plant.current(nr[k], ni[k]);
     for _ in 0..4 {
         let (rr, ri) = ratio(ir, ii);
         let (vr, vi) = (nr[k] + dkr * rr - dki * ri, ni[k] + dkr * ri + dki * rr);
-        let (cr, ci) = current(plant.p_pu, vr, vi);
+        let (cr, ci) = plant.current(vr, vi);
         if !(cr.is_finite() && ci.is_finite()) {
             break;
         }

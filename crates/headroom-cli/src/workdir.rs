@@ -171,7 +171,7 @@ impl Layout {
 
     /// `.headroom-lockSFX`.
     pub fn lock_file(&self) -> PathBuf {
-        self.out.join(format!("{LOCK_PREFIX}{}", self.suffix()))
+        self.out.join(lock_name(self.own_split()))
     }
 
     pub fn work(&self) -> PathBuf {
