@@ -99,6 +99,17 @@ impl Outcome {
     }
 }
 
+/// Where the tight stage of [`Evaluator::settle`] starts.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum TightFrom {
+    /// From the base case's start, keeping the solution at hand should that solve fail.
+    BaseKeepingThis,
+    /// From the base case's start (the solve so far failed).
+    Base,
+    /// From the solution at hand (a slow solve).
+    Here,
+}
+
 /// Solves injections at one node. Solves start from the injections solved before, but each
 /// verdict is settled at a tolerance that makes it independent of the start (see
 /// [`Evaluator::settle`]), so the fast and the stepped search see the same verdicts.
@@ -354,6 +365,8 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         let mut outcome = Outcome::Failed;
         // The last sweep's largest change and the margins of the solution reached so far.
         let mut reached: Option<(f64, Margins)> = None;
+        // How the tight stage starts, when a slow or failed solve sends it there early.
+        let mut tight_from = TightFrom::BaseKeepingThis;
         let mut stage = 0;
         while stage < stages.len() {
             let this = stage;
@@ -379,16 +392,38 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             };
             if this == tight {
                 // Within a hair of a threshold, the last bits of a solution depend on where
-                // it started, and so may the verdict; next to the nose of the P–V curve, so
-                // may whether the sweep converges at all. The tight stage solves again from
-                // the start of the base case, which depends on the injection alone, so that
-                // every search reaches the same numbers, and goes on past the sweep cap while
-                // the sweep still converges.
-                self.start_from_base(p_pu);
-                outcome = match self.solve_patiently(&injection, &stage_settings) {
-                    Ok(_) => Outcome::Converged(thresholds.judge(&self.work, &mut self.seen).0),
-                    Err(_) => Outcome::Failed,
+                // it started, and so may the verdict: the tight stage solves again from the
+                // start of the base case, which depends on the injection alone, so that every
+                // search reaches the same numbers (keeping the solution it has, should that
+                // solve stall on rounding). A slow solve, next to the nose of the P–V curve,
+                // goes on from where it is instead (the base case's start can be too far from
+                // a large injection's solution for the sweep to find it); a failed one starts
+                // again from the base case's start. Either goes on past the sweep cap while
+                // the sweep still converges, so a solution is not declared missing for want
+                // of sweeps.
+                let kept = match tight_from {
+                    TightFrom::BaseKeepingThis => {
+                        let kept = self.work.clone();
+                        self.start_from_base(p_pu);
+                        Some(kept)
+                    }
+                    TightFrom::Base => {
+                        self.start_from_base(p_pu);
+                        None
+                    }
+                    TightFrom::Here => None,
                 };
+                match self.solve_patiently(&injection, &stage_settings) {
+                    Ok(_) => {
+                        outcome = Outcome::Converged(thresholds.judge(&self.work, &mut self.seen).0)
+                    }
+                    Err(_) => match kept {
+                        Some(kept) => self.work = kept,
+                        None if tight_from == TightFrom::Base => outcome = Outcome::Failed,
+                        // A slow solve that stops converging keeps the verdict it reached.
+                        None => {}
+                    },
+                }
                 break;
             }
             if let Some((mismatch_pu, margins)) = reached
@@ -402,26 +437,29 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                 continue;
             }
             match solve(network, demand, &injection, &mut self.work, &stage_settings) {
-                // A slow sweep means the injection is next to the nose of the P–V curve,
-                // where the sweep shrinks its error by a factor ρ close to 1 and neither the
-                // margins above nor the sweep cap can be trusted to give a verdict that does
-                // not depend on the start: the tight stage decides.
-                Ok(converged) if converged.iterations > SLOW_SWEEPS => {
-                    self.sweep_iterations += converged.iterations;
-                    stage = tight;
-                }
                 Ok(converged) => {
                     self.sweep_iterations += converged.iterations;
                     let (mask, margins) = thresholds.judge(&self.work, &mut self.seen);
                     outcome = Outcome::Converged(mask);
+                    // A slow sweep means the injection is next to the nose of the P–V curve,
+                    // where the sweep shrinks its error by a factor ρ close to 1 and the
+                    // margins above, which assume ρ < 0.99, cannot be trusted: the tight
+                    // stage decides.
+                    if converged.iterations > SLOW_SWEEPS {
+                        tight_from = TightFrom::Here;
+                        stage = tight;
+                        continue;
+                    }
                     if settled(margins, converged.mismatch_pu, settled_margin_pu) {
                         break;
                     }
                     reached = Some((converged.mismatch_pu, margins));
                 }
-                // No solution from this start: the tight stage decides as well.
+                // No solution from this start: the tight stage decides, from the base case's.
                 Err(failed) => {
                     self.sweep_iterations += failed.iterations;
+                    outcome = Outcome::Failed;
+                    tight_from = TightFrom::Base;
                     stage = tight;
                 }
             }
@@ -1088,10 +1126,11 @@ impl FeederStudy<'_> {
         ];
         let mut detail = [None; 4];
 
-        // The fast search, unless its answer reaches next to the nose of the P–V curve (see
-        // `Evaluator::near_nose`), where the stepped search decides.
+        // The fast search, unless an answer of it reaches next to the nose of the P–V curve
+        // (see `Evaluator::near_nose`): then the stepped search decides the node's answers, from
+        // a fresh start, so that they are the stepped search's own.
         let fast = match options.method {
-            SearchMethod::Fast => {
+            SearchMethod::Fast => 'fast: {
                 let base_snap = Rc::new(case.snapshot.clone());
                 let answer = eval.fast(
                     ALL,
@@ -1104,39 +1143,44 @@ impl FeederStudy<'_> {
                     },
                 );
                 if eval.near_nose(&answer) {
-                    None
-                } else {
-                    if options.criteria_detail {
-                        for k in DETAIL_ORDER {
-                            let (subset, on) = detail_subsets[k];
-                            if !on {
-                                continue;
-                            }
-                            // A capacity at max_kw is the same under every criterion alone
-                            // (no solution a resolution above the answer is near the nose).
-                            let steps = if answer.hi.is_none() {
-                                answer.lo
-                            } else {
-                                let start = eval.detail_start(subset, &base_snap);
-                                let alone = eval.fast(subset, start);
-                                if eval.near_nose(&alone) {
-                                    eval.stepped(subset)
-                                } else {
-                                    alone.lo
-                                }
-                            };
-                            detail[k] = Some(eval.kw(steps));
-                        }
-                    }
-                    Some((
-                        answer.lo,
-                        Some(answer.lo_snap),
-                        answer.hi.map(|(_, snap)| snap),
-                    ))
+                    break 'fast None;
                 }
+                if options.criteria_detail {
+                    for k in DETAIL_ORDER {
+                        let (subset, on) = detail_subsets[k];
+                        if !on {
+                            continue;
+                        }
+                        // A capacity at max_kw is the same under every criterion alone (no
+                        // solution a resolution above the answer is near the nose).
+                        let steps = if answer.hi.is_none() {
+                            answer.lo
+                        } else {
+                            let start = eval.detail_start(subset, &base_snap);
+                            let alone = eval.fast(subset, start);
+                            if eval.near_nose(&alone) {
+                                break 'fast None;
+                            }
+                            alone.lo
+                        };
+                        detail[k] = Some(eval.kw(steps));
+                    }
+                }
+                Some((
+                    answer.lo,
+                    Some(answer.lo_snap),
+                    answer.hi.map(|(_, snap)| snap),
+                ))
             }
             SearchMethod::Stepped => None,
         };
+        if fast.is_none() && options.method == SearchMethod::Fast {
+            let mut fresh = Evaluator::new(self, s, bus);
+            fresh.load_flows = eval.load_flows;
+            fresh.sweep_iterations = eval.sweep_iterations;
+            eval = fresh;
+            detail = [None; 4];
+        }
         let (steps, pass_snap, fail) = match fast {
             Some(found) => found,
             None => {

@@ -305,3 +305,51 @@ fn fast_equals_stepped_where_the_voltage_rise_turns_back() {
         }
     }
 }
+
+/// A large injection on a weak feeder (20 MW at 3.3 kV, limits loosened until only reverse
+/// flow and the voltage limits bind before it) can lie so far from the base case that a sweep
+/// started from the base case's estimate runs away although a solution exists, which a sweep
+/// started from a nearby injection finds. A solution found once is kept (it is not solved again
+/// from the base case's start), and an answer certified by such a failure is left to the
+/// stepped search: at nodes n98, n99 and n125 the thermal-only capacity is 20 MW, and a fast
+/// search that took the failure at face value said 19,995 kW.
+#[test]
+fn fast_equals_stepped_where_the_base_case_start_runs_away() {
+    let feeder = weak_region_feeder(11);
+    let mut study = Study::default();
+    study.limits.v_max_pu = 1.2;
+    study.limits.v_min_pu = 0.8;
+    study.limits.thermal_pct = 800.0;
+    study.limits.voltage_change_pct = 0.0;
+    study.limits.reverse_flow = ReverseFlow::Forbid;
+    study.search.step_kw = 100.0;
+    study.generation.power_factor = 0.95;
+    study.generation.absorbing = false;
+    let prepared = FeederStudy::prepare(&feeder, &study);
+    let named = ["n98", "n99", "n125"].map(|id| feeder.node_by_id(id).unwrap());
+    let nodes = (1..feeder.n_nodes())
+        .step_by(25)
+        .map(|i| BusIdx::new(i as u32))
+        .chain(named);
+    let options = |method| CapacityOptions {
+        method,
+        criteria_detail: true,
+    };
+    let mut at_max = 0;
+    for bus in nodes {
+        for s in 0..prepared.cases.len() {
+            let fast = prepared.node_capacity(s, bus, &options(SearchMethod::Fast));
+            let stepped = prepared.node_capacity(s, bus, &options(SearchMethod::Stepped));
+            assert!(
+                same_answer(&fast, &stepped),
+                "fast {fast:?}\nstepped {stepped:?}"
+            );
+            at_max +=
+                usize::from(named.contains(&bus) && fast.hosting_kw_thermal == Some(20_000.0));
+        }
+    }
+    assert!(
+        at_max >= 3,
+        "only {at_max} named answers reach 20 MW thermal-only"
+    );
+}
