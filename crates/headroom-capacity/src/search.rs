@@ -106,7 +106,7 @@ enum TightFrom {
     BaseKeepingThis,
     /// From the base case's start (the solve so far failed).
     Base,
-    /// From the solution at hand (a slow solve).
+    /// From the solution at hand (a slow solve), keeping it should the solve stop converging.
     Here,
 }
 
@@ -411,18 +411,19 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                         self.start_from_base(p_pu);
                         None
                     }
-                    TightFrom::Here => None,
+                    TightFrom::Here => Some(self.work.clone()),
                 };
                 match self.solve_patiently(&injection, &stage_settings) {
                     Ok(_) => {
                         outcome = Outcome::Converged(thresholds.judge(&self.work, &mut self.seen).0)
                     }
-                    Err(_) => match kept {
-                        Some(kept) => self.work = kept,
-                        None if tight_from == TightFrom::Base => outcome = Outcome::Failed,
-                        // A slow solve that stops converging keeps the verdict it reached.
-                        None => {}
-                    },
+                    // The solution at hand and its verdict stand (a slow solve that stops
+                    // converging keeps what it reached); a failed solve stays failed.
+                    Err(_) => {
+                        if let Some(kept) = kept {
+                            self.work = kept;
+                        }
+                    }
                 }
                 break;
             }
@@ -918,8 +919,9 @@ const SETTLED_MARGIN_PER_CHANGE: f64 = 100.0;
 const TIGHT_TOL_PU: f64 = 1e-12;
 
 /// A stage of a solve that takes more sweeps than this is next to the nose of the P–V curve:
-/// the sweep shrinks its error by a factor close to 1 there, and the verdict is taken from the
-/// tight stage, solved from the base case's start. Ordinary solves take 1 to 6 sweeps.
+/// the sweep shrinks its error by a factor close to 1 there, and the solve goes on from where
+/// it is to the tight stage's tolerance before its verdict is taken. Ordinary solves take 1 to
+/// 6 sweeps.
 const SLOW_SWEEPS: u32 = 30;
 
 /// Most sweeps of a solve that goes on past the cap because it still converges.
