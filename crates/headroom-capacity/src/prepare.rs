@@ -2,7 +2,8 @@
 //! and thresholds, and the path impedances the fast search predicts from.
 
 use headroom_flow::{
-    Converged, Demand, FlowState, Network, NotConverged, Solution, SolveSettings, solve,
+    Converged, Demand, FlowState, Network, NotConverged, Patience, Solution, SolveSettings,
+    solve_patiently,
 };
 use headroom_model::{BranchIdx, BusIdx, Feeder, Scenario, Study};
 
@@ -141,7 +142,16 @@ impl<'f> FeederStudy<'f> {
             .zip(demands)
             .map(|(scenario, demand)| {
                 let mut base = FlowState::flat(&network);
-                let base_result = solve(&network, &demand, &[], &mut base, &solve_settings);
+                // Past the sweep cap while it converges: a heavily loaded case next to the
+                // nose of the P–V curve converges slowly but has a solution.
+                let base_result = solve_patiently(
+                    &network,
+                    &demand,
+                    &[],
+                    &mut base,
+                    &solve_settings,
+                    &Patience::default(),
+                );
                 let snapshot = Snapshot::capture(&base);
                 let thresholds = Thresholds::new(feeder, &network, &study.limits, &snapshot);
                 let mut subtree_ov_headroom: Vec<f64> = (0..n)

@@ -4,7 +4,7 @@
 use std::collections::HashMap;
 use std::rc::Rc;
 
-use headroom_flow::{FlowState, Injection, NotConvergedReason, SolveSettings, solve};
+use headroom_flow::{FlowState, Injection, Patience, SolveSettings, solve};
 use headroom_model::BusIdx;
 
 use crate::criteria::{
@@ -468,59 +468,31 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         outcome
     }
 
-    /// Solves from the state in `self.work`, past the sweep cap while each further
-    /// `max_iterations` sweeps at least halve the last sweep's change (the sweep converges,
-    /// only slowly: next to the nose of the P–V curve), up to [`PATIENT_SWEEPS`]. A sweep that
+    /// Solves from the state in `self.work`, past the sweep cap while the sweep still
+    /// converges ([`headroom_flow::solve_patiently`]), up to [`PATIENT_SWEEPS`]; a sweep that
     /// stalls on rounding within the study's tolerance counts as converged there.
     fn solve_patiently(
         &mut self,
         injection: &[Injection],
         stage: &SolveSettings,
     ) -> Result<headroom_flow::Converged, headroom_flow::NotConverged> {
-        let (network, demand) = (&self.study.network, &self.case.demand);
-        let accept_pu = self.study.solve_settings.tol_pu;
-        let mut done = 0;
-        let mut last_pu = f64::INFINITY;
-        loop {
-            let result = solve(network, demand, injection, &mut self.work, stage);
-            let iterations = match &result {
-                Ok(converged) => converged.iterations,
-                Err(failed) => failed.iterations,
-            };
-            self.sweep_iterations += iterations;
-            done += iterations;
-            match result {
-                Ok(converged) => {
-                    return Ok(headroom_flow::Converged {
-                        iterations: done,
-                        ..converged
-                    });
-                }
-                Err(failed) if failed.reason == NotConvergedReason::IterationLimit => {
-                    if failed.mismatch_pu <= accept_pu {
-                        return Ok(headroom_flow::Converged {
-                            iterations: done,
-                            mismatch_pu: failed.mismatch_pu,
-                        });
-                    }
-                    // (A NaN change is not shrinking.)
-                    let shrinking = failed.mismatch_pu < 0.5 * last_pu;
-                    if !shrinking || done >= PATIENT_SWEEPS {
-                        return Err(headroom_flow::NotConverged {
-                            iterations: done,
-                            ..failed
-                        });
-                    }
-                    last_pu = failed.mismatch_pu;
-                }
-                Err(failed) => {
-                    return Err(headroom_flow::NotConverged {
-                        iterations: done,
-                        ..failed
-                    });
-                }
-            }
-        }
+        let patience = Patience {
+            max_sweeps: PATIENT_SWEEPS,
+            accept_pu: self.study.solve_settings.tol_pu,
+        };
+        let result = headroom_flow::solve_patiently(
+            &self.study.network,
+            &self.case.demand,
+            injection,
+            &mut self.work,
+            stage,
+            &patience,
+        );
+        self.sweep_iterations += match &result {
+            Ok(converged) => converged.iterations,
+            Err(failed) => failed.iterations,
+        };
+        result
     }
 
     /// Starts from the two solved injections nearest to `p_pu` (the base case counts as solved

@@ -1,7 +1,9 @@
 //! `headroom flow`: one load flow per scenario, node voltages and branch flows to Parquet.
 
 use headroom_export::ColumnData;
-use headroom_flow::{Demand, FlowState, Network, Solution, SolveSettings, solve};
+use headroom_flow::{
+    Demand, FlowState, Network, Patience, Solution, SolveSettings, solve_patiently,
+};
 
 use crate::args::FlowArgs;
 use crate::output::{load_inputs, prepare_out_dir, write_table};
@@ -45,12 +47,14 @@ pub fn run(args: &FlowArgs) -> Result<(), Failure> {
             let demand =
                 Demand::from_feeder(feeder, &network, scenario.load_scale, scenario.gen_scale);
             let mut state = FlowState::flat(&network);
-            match solve(
+            // Past the sweep cap while it converges, as the base cases of `map` are.
+            match solve_patiently(
                 &network,
                 &demand,
                 &[],
                 &mut state,
                 &SolveSettings::default(),
+                &Patience::default(),
             ) {
                 Ok(_) => solved.push(Solved {
                     feeder: f,

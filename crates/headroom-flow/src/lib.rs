@@ -2,7 +2,8 @@
 //!
 //! Main types: [`Network`] (a feeder in per unit, as flat arrays in depth-first order),
 //! [`Demand`] (net demand per node for one operating case), [`FlowState`] (voltages and branch
-//! currents, reused between solves so a solve allocates nothing), [`solve`] and its result
+//! currents, reused between solves so a solve allocates nothing), [`solve`] (and
+//! [`solve_patiently`], which goes past the sweep cap while the sweep converges) and its result
 //! [`Converged`] or [`NotConverged`], and [`Solution`] for reading results in engineering units.
 //!
 //! Conventions:
@@ -43,4 +44,7 @@ mod sweep;
 
 pub use network::{Demand, Injection, Network, S_BASE_KVA};
 pub use results::{BranchFlow, Solution};
-pub use sweep::{Converged, FlowState, NotConverged, NotConvergedReason, SolveSettings, solve};
+pub use sweep::{
+    Converged, FlowState, NotConverged, NotConvergedReason, Patience, SolveSettings, solve,
+    solve_patiently,
+};

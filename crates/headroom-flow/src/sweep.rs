@@ -320,3 +320,78 @@ pub fn solve(
         reason: NotConvergedReason::IterationLimit,
     })
 }
+
+/// How far [`solve_patiently`] goes past the sweep cap.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Patience {
+    /// Most sweeps in all.
+    pub max_sweeps: u32,
+    /// A sweep that stops converging with its last change at most this (it stalls on rounding
+    /// short of a very tight tolerance) counts as converged, pu. 0: never.
+    pub accept_pu: f64,
+}
+
+impl Default for Patience {
+    /// 10,000 sweeps; no stall accepted.
+    fn default() -> Patience {
+        Patience {
+            max_sweeps: 10_000,
+            accept_pu: 0.0,
+        }
+    }
+}
+
+/// Like [`solve`], but a sweep that is still converging at the cap goes on: another
+/// `settings.max_iterations` sweeps at a time, as long as each such round at least halves the
+/// last sweep's change, up to `patience.max_sweeps` in all. Next to the nose of the P–V curve
+/// (voltage collapse) the sweep shrinks its error by a factor close to 1 per sweep, so whether
+/// it converges within a fixed cap depends on how far from the solution it started; going on
+/// while it converges makes "no solution" mean that the sweep stopped converging. Ordinary
+/// solves stop within the first round, exactly as [`solve`] does.
+///
+/// The [`Converged`] or [`NotConverged`] returned counts the sweeps of every round.
+pub fn solve_patiently(
+    network: &Network,
+    demand: &Demand,
+    extra: &[Injection],
+    state: &mut FlowState,
+    settings: &SolveSettings,
+    patience: &Patience,
+) -> Result<Converged, NotConverged> {
+    let mut done = 0;
+    let mut last_pu = f64::INFINITY;
+    loop {
+        match solve(network, demand, extra, state, settings) {
+            Ok(converged) => {
+                return Ok(Converged {
+                    iterations: done + converged.iterations,
+                    ..converged
+                });
+            }
+            Err(failed) if failed.reason == NotConvergedReason::IterationLimit => {
+                done += failed.iterations;
+                if failed.mismatch_pu <= patience.accept_pu {
+                    return Ok(Converged {
+                        iterations: done,
+                        mismatch_pu: failed.mismatch_pu,
+                    });
+                }
+                // (A NaN change is not shrinking.)
+                let shrinking = failed.mismatch_pu < 0.5 * last_pu;
+                if !shrinking || done >= patience.max_sweeps || failed.iterations == 0 {
+                    return Err(NotConverged {
+                        iterations: done,
+                        ..failed
+                    });
+                }
+                last_pu = failed.mismatch_pu;
+            }
+            Err(failed) => {
+                return Err(NotConverged {
+                    iterations: done + failed.iterations,
+                    ..failed
+                });
+            }
+        }
+    }
+}

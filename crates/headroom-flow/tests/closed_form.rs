@@ -5,7 +5,10 @@
 //! drawn at the receiving end (generation: P_L = −P_gen), as used by Baran & Wu (1989) and
 //! standard textbooks (see ../shared/reference/trade-facts.md §5).
 
-use headroom_flow::{Demand, FlowState, Injection, Network, Solution, SolveSettings, solve};
+use headroom_flow::{
+    Demand, FlowState, Injection, Network, Patience, Solution, SolveSettings, solve,
+    solve_patiently,
+};
 use headroom_model::{BranchRecord, BusIdx, Feeder, FeederHeader, NodeRecord};
 
 fn two_bus(kv: f64, r_ohm: f64, x_ohm: f64, load_kw: f64, load_kvar: f64, head_pu: f64) -> Feeder {
@@ -155,6 +158,56 @@ fn collapse_is_reported_not_panicked() {
     )
     .unwrap_err();
     assert!(err.iterations >= 1);
+}
+
+/// A load just short of the nose of the P–V curve: 24.9 MW through 1.21 Ω (0.01 pu) at
+/// 11 kV, so r·p = 0.249 against the nose at 0.25. The sweep shrinks its error by r·p/V² ≈ 0.88
+/// per sweep there and needs about 160 sweeps from a flat start: the capped solve gives up,
+/// the patient one reaches the quartic's solution. Just past the nose (25.1 MW) neither finds
+/// one, because there is none.
+#[test]
+fn next_to_the_nose_a_patient_solve_finds_the_solution_a_capped_one_misses() {
+    let settings = SolveSettings {
+        tol_pu: 1e-12,
+        max_iterations: 100,
+    };
+    let short = two_bus(11.0, 1.21, 0.0, 24_900.0, 0.0, 1.0);
+    let network = Network::new(&short);
+    let demand = Demand::from_feeder(&short, &network, 1.0, 1.0);
+    let mut capped = FlowState::flat(&network);
+    assert!(solve(&network, &demand, &[], &mut capped, &settings).is_err());
+    let mut state = FlowState::flat(&network);
+    let converged = solve_patiently(
+        &network,
+        &demand,
+        &[],
+        &mut state,
+        &settings,
+        &Patience::default(),
+    )
+    .unwrap();
+    assert!(converged.iterations > 100, "{converged:?}");
+    let expected = exact_v_pu(1.0, 0.01, 0.0, 24.9, 0.0);
+    assert!(
+        (state.v_mag_pu(1) - expected).abs() < 1e-9,
+        "{} vs {expected}",
+        state.v_mag_pu(1)
+    );
+
+    let past = two_bus(11.0, 1.21, 0.0, 25_100.0, 0.0, 1.0);
+    let demand = Demand::from_feeder(&past, &network, 1.0, 1.0);
+    let mut state = FlowState::flat(&network);
+    assert!(
+        solve_patiently(
+            &network,
+            &demand,
+            &[],
+            &mut state,
+            &settings,
+            &Patience::default()
+        )
+        .is_err()
+    );
 }
 
 #[test]
