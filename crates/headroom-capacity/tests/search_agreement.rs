@@ -136,15 +136,23 @@ fn study_variant(variant: u8) -> Study {
     study
 }
 
-/// Limits loosened until the nose of the P–V curve matters on weak feeders: the voltage rise
-/// peaks and turns back, solves converge slowly or not at all.
-fn loosened_study(variant: u8) -> Study {
+/// Voltage and thermal limits loosened to these, no voltage-change limit, 100 kW steps: on weak
+/// feeders the nose of the P–V curve then matters (the voltage rise peaks and turns back,
+/// solves converge slowly or not at all).
+fn loose_limits(v_min_pu: f64, v_max_pu: f64, thermal_pct: f64) -> Study {
     let mut study = Study::default();
-    study.limits.v_max_pu = 1.5;
-    study.limits.v_min_pu = 0.5;
-    study.limits.thermal_pct = 2000.0;
+    study.limits.v_min_pu = v_min_pu;
+    study.limits.v_max_pu = v_max_pu;
+    study.limits.thermal_pct = thermal_pct;
     study.limits.voltage_change_pct = 0.0;
     study.search.step_kw = 100.0;
+    study
+}
+
+/// [`loose_limits`] at 0.5–1.5 pu and 2,000 %; odd variants also inject reactive power and
+/// forbid reverse flow.
+fn loosened_study(variant: u8) -> Study {
+    let mut study = loose_limits(0.5, 1.5, 2000.0);
     if variant % 2 == 1 {
         study.generation.power_factor = 0.95;
         study.generation.absorbing = false;
@@ -275,13 +283,7 @@ fn disagreements(prepared: &FeederStudy<'_>) -> Vec<(NodeCapacity, NodeCapacity)
 #[test]
 fn fast_equals_stepped_next_to_voltage_collapse() {
     let feeder = weak_region_feeder(5);
-    let mut study = Study::default();
-    study.limits.v_max_pu = 1.10;
-    study.limits.v_min_pu = 0.90;
-    study.limits.thermal_pct = 400.0;
-    study.limits.voltage_change_pct = 0.0;
-    study.search.step_kw = 100.0;
-    let prepared = FeederStudy::prepare(&feeder, &study);
+    let prepared = FeederStudy::prepare(&feeder, &loose_limits(0.90, 1.10, 400.0));
     let differing = disagreements(&prepared);
     assert!(
         differing.is_empty(),
@@ -311,23 +313,23 @@ fn fast_equals_stepped_next_to_voltage_collapse() {
 #[test]
 fn fast_equals_stepped_where_the_voltage_rise_turns_back() {
     let feeder = weak_region_feeder(7);
-    let mut study = Study::default();
-    study.limits.v_max_pu = 1.5;
-    study.limits.v_min_pu = 0.5;
-    study.limits.thermal_pct = 2000.0;
-    study.limits.voltage_change_pct = 0.0;
-    study.search.step_kw = 100.0;
-    let prepared = FeederStudy::prepare(&feeder, &study);
-    // That node and every 25th (the stepped search is slow here: every solve is).
+    let prepared = FeederStudy::prepare(&feeder, &loose_limits(0.5, 1.5, 2000.0));
     let n130 = feeder.node_by_id("n130").unwrap();
-    let nodes = (1..feeder.n_nodes())
-        .step_by(25)
-        .map(|i| BusIdx::new(i as u32))
-        .chain([n130]);
+    assert_agree_at(&prepared, &[n130]);
+}
+
+/// Asserts that the two searches agree at `named` and at every 25th node (the stepped search is
+/// slow next to the nose: every solve is), in every scenario; returns the answers at `named`.
+fn assert_agree_at(prepared: &FeederStudy<'_>, named: &[BusIdx]) -> Vec<NodeCapacity> {
     let options = |method| CapacityOptions {
         method,
         criteria_detail: true,
     };
+    let nodes = (1..prepared.feeder.n_nodes())
+        .step_by(25)
+        .map(|i| BusIdx::new(i as u32))
+        .chain(named.iter().copied());
+    let mut at_named = Vec::new();
     for bus in nodes {
         for s in 0..prepared.cases.len() {
             let fast = prepared.node_capacity(s, bus, &options(SearchMethod::Fast));
@@ -336,8 +338,12 @@ fn fast_equals_stepped_where_the_voltage_rise_turns_back() {
                 same_answer(&fast, &stepped),
                 "fast {fast:?}\nstepped {stepped:?}"
             );
+            if named.contains(&bus) {
+                at_named.push(fast);
+            }
         }
     }
+    at_named
 }
 
 /// A large injection on a weak feeder (20 MW at 3.3 kV, limits loosened until only reverse
@@ -350,38 +356,16 @@ fn fast_equals_stepped_where_the_voltage_rise_turns_back() {
 #[test]
 fn fast_equals_stepped_where_the_base_case_start_runs_away() {
     let feeder = weak_region_feeder(11);
-    let mut study = Study::default();
-    study.limits.v_max_pu = 1.2;
-    study.limits.v_min_pu = 0.8;
-    study.limits.thermal_pct = 800.0;
-    study.limits.voltage_change_pct = 0.0;
+    let mut study = loose_limits(0.8, 1.2, 800.0);
     study.limits.reverse_flow = ReverseFlow::Forbid;
-    study.search.step_kw = 100.0;
     study.generation.power_factor = 0.95;
     study.generation.absorbing = false;
     let prepared = FeederStudy::prepare(&feeder, &study);
     let named = ["n98", "n99", "n125"].map(|id| feeder.node_by_id(id).unwrap());
-    let nodes = (1..feeder.n_nodes())
-        .step_by(25)
-        .map(|i| BusIdx::new(i as u32))
-        .chain(named);
-    let options = |method| CapacityOptions {
-        method,
-        criteria_detail: true,
-    };
-    let mut at_max = 0;
-    for bus in nodes {
-        for s in 0..prepared.cases.len() {
-            let fast = prepared.node_capacity(s, bus, &options(SearchMethod::Fast));
-            let stepped = prepared.node_capacity(s, bus, &options(SearchMethod::Stepped));
-            assert!(
-                same_answer(&fast, &stepped),
-                "fast {fast:?}\nstepped {stepped:?}"
-            );
-            at_max +=
-                usize::from(named.contains(&bus) && fast.hosting_kw_thermal == Some(20_000.0));
-        }
-    }
+    let at_max = assert_agree_at(&prepared, &named)
+        .iter()
+        .filter(|answer| answer.hosting_kw_thermal == Some(20_000.0))
+        .count();
     assert!(
         at_max >= 3,
         "only {at_max} named answers reach 20 MW thermal-only"
