@@ -133,3 +133,60 @@ fn stepped_and_fast_search_give_the_same_answers() {
         fast.values().map(|(_, limit, _)| limit.as_str()).collect();
     assert!(limits.len() >= 2, "{limits:?}");
 }
+
+/// Next to voltage collapse (a weak 3.3 kV feeder, limits loosened to 0.5–1.5 pu and 2,000 %
+/// until the nose of the P–V curve matters) the fast search hands nodes to the stepped search:
+/// the answers still equal the stepped search's, and the run's summary says how many answers
+/// were searched step by step.
+#[test]
+fn next_to_voltage_collapse_the_summary_counts_the_answers_searched_step_by_step() {
+    let dir = tempfile::tempdir().unwrap();
+    let feeder = dir.path().join("weak");
+    run_ok(&[
+        OsStr::new("synth"),
+        OsStr::new("--nodes"),
+        OsStr::new("60"),
+        OsStr::new("--seed"),
+        OsStr::new("7"),
+        OsStr::new("--kv"),
+        OsStr::new("3.3"),
+        OsStr::new("--out"),
+        feeder.as_os_str(),
+    ]);
+    let study = dir.path().join("loose.toml");
+    std::fs::write(
+        &study,
+        "[limits]\nv_max_pu = 1.5\nv_min_pu = 0.5\nthermal_pct = 2000.0\n\
+         voltage_change_pct = 0.0\n\n[search]\nstep_kw = 100.0\n",
+    )
+    .unwrap();
+    let run = |out: &Path, extra: &[&str]| {
+        let mut args = vec![
+            OsStr::new("map"),
+            feeder.as_os_str(),
+            OsStr::new("--study"),
+            study.as_os_str(),
+            OsStr::new("--out"),
+            out.as_os_str(),
+            OsStr::new("--quiet"),
+        ];
+        args.extend(extra.iter().map(OsStr::new));
+        run_ok(&args)
+    };
+    let (fast, stepped) = (dir.path().join("fast"), dir.path().join("stepped"));
+    let summary = run(&fast, &[]);
+    let reference = run(&stepped, &["--search", "stepped"]);
+    assert_eq!(answers(&fast), answers(&stepped));
+    let counted = |text: &str| {
+        text.lines()
+            .find_map(|line| {
+                line.split("searched step by step next to voltage collapse: ")
+                    .nth(1)
+            })
+            .map(|n| n.trim().parse::<u64>().unwrap())
+    };
+    let handed = counted(&summary).unwrap_or_else(|| panic!("no count in:\n{summary}"));
+    assert!(handed > 0 && handed <= 2 * 59, "{handed}");
+    // The stepped search hands nothing over, and says nothing about it.
+    assert_eq!(counted(&reference), None, "{reference}");
+}

@@ -55,6 +55,9 @@ pub struct RunStats {
     pub by_limit: [u64; 7],
     /// Limits broken without new generation, over all feeders and scenarios.
     pub baseline_violations: u64,
+    /// Answers the fast search left to the stepped search next to voltage collapse
+    /// ([`NodeCapacity::stepped_near_nose`]).
+    pub stepped_near_nose: u64,
 }
 
 impl RunStats {
@@ -70,6 +73,7 @@ impl RunStats {
             *a += b;
         }
         self.baseline_violations += other.baseline_violations;
+        self.stepped_near_nose += other.stepped_near_nose;
     }
 
     /// Average cost of one node answer in load-flow equivalents: sweep iterations per answer
@@ -178,6 +182,7 @@ fn assemble<'f>(p: &FeederStudy<'f>, answers: Vec<NodeCapacity>) -> (FeederMap<'
             hosting_kw[[s, j]] = answer.hosting_kw;
             stats.load_flows += u64::from(answer.load_flows);
             stats.sweep_iterations += u64::from(answer.sweep_iterations);
+            stats.stepped_near_nose += u64::from(answer.stepped_near_nose);
             let l = Limit::ALL
                 .iter()
                 .position(|&l| l == answer.limit)

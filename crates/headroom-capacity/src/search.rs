@@ -71,6 +71,9 @@ pub struct NodeCapacity {
     pub load_flows: u32,
     /// Sweep iterations used by those load flows.
     pub sweep_iterations: u32,
+    /// Whether the fast search came next to the nose of the P–V curve (voltage collapse) and
+    /// left this answer to the stepped search (never for the stepped search itself).
+    pub stepped_near_nose: bool,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -1089,6 +1092,7 @@ impl FeederStudy<'_> {
                 hosting_kw_reverse: reverse_on.then_some(0.0),
                 load_flows: 0,
                 sweep_iterations: 0,
+                stepped_near_nose: false,
             };
         }
         let mut eval = Evaluator::new(self, s, bus);
@@ -1148,7 +1152,8 @@ impl FeederStudy<'_> {
             }
             SearchMethod::Stepped => None,
         };
-        if fast.is_none() && options.method == SearchMethod::Fast {
+        let stepped_near_nose = fast.is_none() && options.method == SearchMethod::Fast;
+        if stepped_near_nose {
             let mut fresh = Evaluator::new(self, s, bus);
             fresh.load_flows = eval.load_flows;
             fresh.sweep_iterations = eval.sweep_iterations;
@@ -1213,6 +1218,7 @@ impl FeederStudy<'_> {
             hosting_kw_reverse: detail[3],
             load_flows: eval.load_flows,
             sweep_iterations: eval.sweep_iterations,
+            stepped_near_nose,
         }
     }
 }

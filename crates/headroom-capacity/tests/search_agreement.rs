@@ -309,7 +309,11 @@ fn fast_equals_stepped_where_the_voltage_rise_turns_back() {
     let feeder = weak_region_feeder(7);
     let prepared = FeederStudy::prepare(&feeder, &loose_limits(0.5, 1.5, 2000.0));
     let n130 = feeder.node_by_id("n130").unwrap();
-    assert_agree_at(&prepared, &[n130]);
+    let at_n130 = assert_agree_at(&prepared, &[n130]);
+    assert!(
+        at_n130.iter().any(|answer| answer.stepped_near_nose),
+        "the fast search no longer hands n130 to the stepped search: {at_n130:?}"
+    );
 }
 
 /// Asserts that the two searches agree at `named` and at every 25th node (the stepped search is

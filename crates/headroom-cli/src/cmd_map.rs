@@ -504,6 +504,7 @@ fn feeder_record(map: &FeederMap<'_>, stats: &RunStats, entry: &FeederEntry) -> 
             base_sweep_iterations: stats.base_sweep_iterations,
             base_cases: stats.base_cases,
             baseline_violations: stats.baseline_violations,
+            stepped_near_nose: stats.stepped_near_nose,
         },
     }
 }

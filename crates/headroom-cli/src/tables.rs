@@ -414,7 +414,7 @@ pub fn limit_counts(by_limit: &[u64; 7]) -> String {
 
 /// Totals line of a run.
 pub fn stats_line(stats: &RunStats, seconds: f64) -> String {
-    format!(
+    let mut line = format!(
         "{} node answers on {} feeder(s) in {:.2} s: {} load flows, {} sweep iterations \
          ({:.2} load-flow equivalents per answer); binding: {}; baseline violations: {}",
         stats.node_results,
@@ -425,5 +425,12 @@ pub fn stats_line(stats: &RunStats, seconds: f64) -> String {
         stats.load_flow_equivalents_per_answer(),
         limit_counts(&stats.by_limit),
         stats.baseline_violations
-    )
+    );
+    if stats.stepped_near_nose > 0 {
+        line.push_str(&format!(
+            "; searched step by step next to voltage collapse: {}",
+            stats.stepped_near_nose
+        ));
+    }
+    line
 }

@@ -84,6 +84,10 @@ pub struct StatsRecord {
     pub base_sweep_iterations: u64,
     pub base_cases: u64,
     pub baseline_violations: u64,
+    /// Answers left to the stepped search next to voltage collapse (absent in work folders
+    /// written before it was counted).
+    #[serde(default)]
+    pub stepped_near_nose: u64,
 }
 
 /// A finished feeder: what the manifest lists and the summary prints.
@@ -123,6 +127,7 @@ impl FeederRecord {
             base_cases: self.stats.base_cases,
             by_limit,
             baseline_violations: self.stats.baseline_violations,
+            stepped_near_nose: self.stats.stepped_near_nose,
         }
     }
 }
