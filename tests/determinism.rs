@@ -28,8 +28,8 @@ fn synthetic_region(dir: &Path) -> PathBuf {
     region
 }
 
-/// `headroom map PATH --out OUT --quiet EXTRA...`.
-fn map(path: &Path, out: &Path, extra: &[&str]) {
+/// `headroom map PATH --out OUT --quiet EXTRA...`; returns what it prints.
+fn map(path: &Path, out: &Path, extra: &[&str]) -> String {
     let mut args = vec![
         OsStr::new("map"),
         path.as_os_str(),
@@ -38,7 +38,7 @@ fn map(path: &Path, out: &Path, extra: &[&str]) {
         OsStr::new("--quiet"),
     ];
     args.extend(extra.iter().map(OsStr::new));
-    run_ok(&args);
+    run_ok(&args)
 }
 
 const TABLES: [&str; 4] = [
@@ -160,22 +160,14 @@ fn next_to_voltage_collapse_the_summary_counts_the_answers_searched_step_by_step
          voltage_change_pct = 0.0\n\n[search]\nstep_kw = 100.0\n",
     )
     .unwrap();
-    let run = |out: &Path, extra: &[&str]| {
-        let mut args = vec![
-            OsStr::new("map"),
-            feeder.as_os_str(),
-            OsStr::new("--study"),
-            study.as_os_str(),
-            OsStr::new("--out"),
-            out.as_os_str(),
-            OsStr::new("--quiet"),
-        ];
-        args.extend(extra.iter().map(OsStr::new));
-        run_ok(&args)
-    };
+    let study = study.to_str().expect("a UTF-8 temporary path");
     let (fast, stepped) = (dir.path().join("fast"), dir.path().join("stepped"));
-    let summary = run(&fast, &[]);
-    let reference = run(&stepped, &["--search", "stepped"]);
+    let summary = map(&feeder, &fast, &["--study", study]);
+    let reference = map(
+        &feeder,
+        &stepped,
+        &["--study", study, "--search", "stepped"],
+    );
     assert_eq!(answers(&fast), answers(&stepped));
     let counted = |text: &str| {
         text.lines()
