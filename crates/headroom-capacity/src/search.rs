@@ -4,7 +4,7 @@
 use std::collections::HashMap;
 use std::rc::Rc;
 
-use headroom_flow::{FlowState, Injection, Patience, SolveSettings, solve};
+use headroom_flow::{FlowState, Injection, NotConvergedReason, Patience, SolveSettings, solve};
 use headroom_model::BusIdx;
 
 use crate::criteria::{
@@ -107,8 +107,11 @@ impl Outcome {
 enum TightFrom {
     /// From the base case's start, keeping the solution at hand should that solve fail.
     BaseKeepingThis,
-    /// From the base case's start (the solve so far failed).
+    /// From the base case's start (the solve so far ran away).
     Base,
+    /// From where the solve ran out of sweeps, and should it stop converging there, from the
+    /// base case's start.
+    HereThenBase,
     /// From the solution at hand (a slow solve), keeping it should the solve stop converging.
     Here,
 }
@@ -400,10 +403,11 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                 // search reaches the same numbers (keeping the solution it has, should that
                 // solve stall on rounding). A slow solve, next to the nose of the P–V curve,
                 // goes on from where it is instead (the base case's start can be too far from
-                // a large injection's solution for the sweep to find it); a failed one starts
-                // again from the base case's start. Either goes on past the sweep cap while
-                // the sweep still converges, so a solution is not declared missing for want
-                // of sweeps.
+                // a large injection's solution for the sweep to find it), and so does one that
+                // ran out of sweeps, before it tries the base case's start; one that ran away
+                // starts again from the base case's start. Each goes on past the sweep cap
+                // while the sweep still converges, so a solution is not declared missing for
+                // want of sweeps.
                 let kept = match tight_from {
                     TightFrom::BaseKeepingThis => {
                         let kept = self.work.clone();
@@ -414,9 +418,15 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                         self.start_from_base(p_pu);
                         None
                     }
+                    TightFrom::HereThenBase => None,
                     TightFrom::Here => Some(self.work.clone()),
                 };
-                match self.solve_patiently(&injection, &stage_settings) {
+                let mut result = self.solve_patiently(&injection, &stage_settings);
+                if result.is_err() && tight_from == TightFrom::HereThenBase {
+                    self.start_from_base(p_pu);
+                    result = self.solve_patiently(&injection, &stage_settings);
+                }
+                match result {
                     Ok(_) => {
                         outcome = Outcome::Converged(thresholds.judge(&self.work, &mut self.seen).0)
                     }
@@ -459,11 +469,15 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                     }
                     reached = Some((converged.mismatch_pu, margins));
                 }
-                // No solution from this start: the tight stage decides, from the base case's.
+                // No solution from this start: the tight stage decides, going on from here
+                // while the sweep still converges, else from the base case's start.
                 Err(failed) => {
                     self.sweep_iterations += failed.iterations;
                     outcome = Outcome::Failed;
-                    tight_from = TightFrom::Base;
+                    tight_from = match failed.reason {
+                        NotConvergedReason::IterationLimit => TightFrom::HereThenBase,
+                        NotConvergedReason::Diverged => TightFrom::Base,
+                    };
                     stage = tight;
                 }
             }
