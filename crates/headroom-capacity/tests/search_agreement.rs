@@ -176,7 +176,12 @@ proptest! {
         let study = study_variant(variant);
         let prepared = FeederStudy::prepare(&feeder, &study);
         let differing = disagreements(&prepared);
-        prop_assert!(differing.is_empty(), "{} answers differ, e.g. {:?}", differing.len(), differing.first());
+        prop_assert!(
+            differing.is_empty(),
+            "{} answers differ, e.g. {:?}",
+            differing.len(),
+            differing.first()
+        );
     }
 
     #[test]
@@ -190,7 +195,12 @@ proptest! {
         let feeder = synthetic(n_nodes, seed, nominal_kv);
         let prepared = FeederStudy::prepare(&feeder, &loosened_study(variant));
         let differing = disagreements(&prepared);
-        prop_assert!(differing.is_empty(), "{} answers differ, e.g. {:?}", differing.len(), differing.first());
+        prop_assert!(
+            differing.is_empty(),
+            "{} answers differ, e.g. {:?}",
+            differing.len(),
+            differing.first()
+        );
     }
 }
 
@@ -269,11 +279,11 @@ fn disagreements(prepared: &FeederStudy<'_>) -> Vec<(NodeCapacity, NodeCapacity)
 /// Next to the nose of the P–V curve (voltage collapse) the sweep converges slowly, and whether
 /// it converged within the sweep cap used to depend on where it started: on this feeder, with
 /// limits loosened until the nose matters, the two searches disagreed on the thermal-only
-/// capacity of four answers (8,386 kW fast against 8,365 kW stepped at node n115, min-load),
+/// capacity of eight answers (8,386 kW fast against 8,365 kW stepped at node n115, min-load),
 /// because the stepped search's solve at 8,366 kW ran out of sweeps while the solution exists.
-/// A slow solve now takes its verdict from the base case's start and goes on while it
-/// converges, so no search sees a solution fail for want of sweeps; and an answer this close
-/// to the nose is left to the stepped search (see the next test).
+/// A slow solve now goes on past the cap while it converges, so no search sees a solution fail
+/// for want of sweeps; and an answer this close to the nose is left to the stepped search (see
+/// the next test).
 #[test]
 fn fast_equals_stepped_next_to_voltage_collapse() {
     let feeder = weak_region_feeder(5);
