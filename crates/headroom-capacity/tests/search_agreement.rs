@@ -8,6 +8,7 @@ use headroom_flow::{Demand, FlowState, Injection, Network, Solution, SolveSettin
 use headroom_model::{BusIdx, Feeder, ReverseFlow, Study};
 use headroom_synth::{SynthSettings, generate};
 use proptest::prelude::*;
+use proptest::test_runner::TestCaseError;
 
 fn synthetic(n_nodes: usize, seed: u64, nominal_kv: f64) -> Feeder {
     let mut settings = SynthSettings::new(n_nodes, seed);
@@ -175,13 +176,7 @@ proptest! {
         let feeder = synthetic(n_nodes, seed, nominal_kv);
         let study = study_variant(variant);
         let prepared = FeederStudy::prepare(&feeder, &study);
-        let differing = disagreements(&prepared);
-        prop_assert!(
-            differing.is_empty(),
-            "{} answers differ, e.g. {:?}",
-            differing.len(),
-            differing.first()
-        );
+        searches_agree(&prepared).map_err(TestCaseError::fail)?;
     }
 
     #[test]
@@ -194,13 +189,7 @@ proptest! {
         let nominal_kv = [3.3, 6.6][kv_index];
         let feeder = synthetic(n_nodes, seed, nominal_kv);
         let prepared = FeederStudy::prepare(&feeder, &loosened_study(variant));
-        let differing = disagreements(&prepared);
-        prop_assert!(
-            differing.is_empty(),
-            "{} answers differ, e.g. {:?}",
-            differing.len(),
-            differing.first()
-        );
+        searches_agree(&prepared).map_err(TestCaseError::fail)?;
     }
 }
 
@@ -266,14 +255,23 @@ fn weak_region_feeder(seed: u64) -> Feeder {
     region[0].1.to_feeder(&region[0].0).unwrap()
 }
 
-/// Every answer on which the two searches differ.
-fn disagreements(prepared: &FeederStudy<'_>) -> Vec<(NodeCapacity, NodeCapacity)> {
+/// Whether the two searches give the same answers on every node and scenario; if not, how
+/// many differ and the first of them.
+fn searches_agree(prepared: &FeederStudy<'_>) -> Result<(), String> {
     let fast = answers(prepared, SearchMethod::Fast);
     let stepped = answers(prepared, SearchMethod::Stepped);
-    fast.into_iter()
-        .zip(stepped)
+    let differing: Vec<_> = fast
+        .iter()
+        .zip(&stepped)
         .filter(|(f, s)| !same_answer(f, s))
-        .collect()
+        .collect();
+    match differing.first() {
+        None => Ok(()),
+        Some((f, s)) => Err(format!(
+            "{} answers differ, e.g. fast {f:?}\nstepped {s:?}",
+            differing.len()
+        )),
+    }
 }
 
 /// Next to the nose of the P–V curve (voltage collapse) the sweep converges slowly, and whether
@@ -288,13 +286,9 @@ fn disagreements(prepared: &FeederStudy<'_>) -> Vec<(NodeCapacity, NodeCapacity)
 fn fast_equals_stepped_next_to_voltage_collapse() {
     let feeder = weak_region_feeder(5);
     let prepared = FeederStudy::prepare(&feeder, &loose_limits(0.90, 1.10, 400.0));
-    let differing = disagreements(&prepared);
-    assert!(
-        differing.is_empty(),
-        "{} answers differ, e.g. {:?}",
-        differing.len(),
-        differing.first()
-    );
+    if let Err(differing) = searches_agree(&prepared) {
+        panic!("{differing}");
+    }
     // The feeder does reach the nose within the search: some thermal-only capacity is set by
     // the overload just before it (the case this test is about), well below max_kw.
     let thermal: Vec<f64> = answers(&prepared, SearchMethod::Fast)
