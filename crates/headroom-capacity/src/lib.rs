@@ -37,6 +37,7 @@
 #![deny(missing_docs)]
 
 mod criteria;
+mod linear;
 mod prepare;
 mod run;
 mod screen;

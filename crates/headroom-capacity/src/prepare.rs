@@ -8,6 +8,7 @@ use headroom_flow::{
 use headroom_model::{BranchIdx, BusIdx, Feeder, Scenario, Study};
 
 use crate::criteria::{Element, Limit, Snapshot, Thresholds, Violation};
+use crate::linear::LinearResponse;
 
 /// One scenario of a prepared feeder: its demand and its solution without new generation.
 #[derive(Debug, Clone)]
@@ -29,6 +30,9 @@ pub struct ScenarioCase {
     /// Σ |S| of the net demand over every node, pu: a branch current (pu) moves by at most
     /// about this times a small voltage error (pu) of the nodes it feeds.
     pub(crate) demand_mva_pu: f64,
+    /// The base case's linear response to a current injected at a node (the start of solves
+    /// far from any solved injection).
+    pub(crate) linear: LinearResponse,
 }
 
 /// Base-case flow of one branch in one scenario.
@@ -171,8 +175,10 @@ impl<'f> FeederStudy<'f> {
                     .zip(demand.q_pu())
                     .map(|(p, q)| p.hypot(*q))
                     .sum();
+                let linear = LinearResponse::new(&network, &demand, &base);
                 ScenarioCase {
                     scenario: scenario.clone(),
+                    linear,
                     demand_mva_pu,
                     demand,
                     base,

@@ -133,6 +133,27 @@ impl FlowState {
         }
     }
 
+    /// Sets every node voltage to `base` (real, imaginary, pu) plus a change computed node by
+    /// node in index order, parents first, from the voltages already set (`change(i, re, im)`
+    /// sees the first `i` of them), for a warm start that propagates down the feeder.
+    pub fn set_changes(
+        &mut self,
+        base_re: &[f64],
+        base_im: &[f64],
+        mut change: impl FnMut(usize, &[f64], &[f64]) -> (f64, f64),
+    ) {
+        let n = self.v_re.len();
+        assert!(
+            base_re.len() == n && base_im.len() == n,
+            "base of another network"
+        );
+        for i in 0..n {
+            let (dr, di) = change(i, &self.v_re[..i], &self.v_im[..i]);
+            self.v_re[i] = base_re[i] + dr;
+            self.v_im[i] = base_im[i] + di;
+        }
+    }
+
     /// Number of nodes.
     pub fn n_nodes(&self) -> usize {
         self.v_re.len()

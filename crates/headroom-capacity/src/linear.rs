@@ -1,0 +1,227 @@
+//! The base case's linear response to a current injected at one node, the loads' response
+//! included: the start of a solve far from any solved injection.
+//!
+//! A constant-power load draws I = conj(S / V), so a small voltage change ΔV changes its
+//! current by −conj(S) / conj(V)² · conj(ΔV): linear in the real and imaginary parts of ΔV but
+//! not in ΔV as a complex number. Every relation here is therefore a real 2×2 matrix acting on
+//! (re, im). Per node, from the leaves up:
+//!
+//! - `Y_i`, the subtree's input admittance at node i: its load's plus, per child c,
+//!   `G_c·Y_c` with `G_c = (1 + Y_c·Z_c)⁻¹` (the current into a child's branch answers the
+//!   voltage change at its top through the branch impedance `Z_c`);
+//! - `A_i = 1 − Z_i·G_i·Y_i`: with no current injected below it, a node's voltage change is
+//!   `A_i` times its parent's.
+//!
+//! A current ΔI injected at node k adds, along k's path to the head, `H_j·P_j·ΔI` to the change
+//! at path node j, where `H_j = Z_j·G_j` and `P_j` is the product of the `G` of the path nodes
+//! below j down to k. Everywhere else the change follows the parent's through `A`. With every
+//! load left out (`Y = 0`), this is the superposition of ΔI through the path impedance each node
+//! shares with k.
+
+use headroom_flow::{Demand, FlowState, Network};
+
+/// A real 2×2 matrix, row-major, acting on (re, im).
+pub(crate) type M2 = [f64; 4];
+
+const IDENTITY: M2 = [1.0, 0.0, 0.0, 1.0];
+
+fn mul(a: &M2, b: &M2) -> M2 {
+    [
+        a[0] * b[0] + a[1] * b[2],
+        a[0] * b[1] + a[1] * b[3],
+        a[2] * b[0] + a[3] * b[2],
+        a[2] * b[1] + a[3] * b[3],
+    ]
+}
+
+fn add(a: &M2, b: &M2) -> M2 {
+    [a[0] + b[0], a[1] + b[1], a[2] + b[2], a[3] + b[3]]
+}
+
+fn sub(a: &M2, b: &M2) -> M2 {
+    [a[0] - b[0], a[1] - b[1], a[2] - b[2], a[3] - b[3]]
+}
+
+fn inverse(a: &M2) -> M2 {
+    let det = a[0] * a[3] - a[1] * a[2];
+    [a[3] / det, -a[1] / det, -a[2] / det, a[0] / det]
+}
+
+/// `a` applied to the vector (re, im).
+pub(crate) fn apply(a: &M2, (re, im): (f64, f64)) -> (f64, f64) {
+    (a[0] * re + a[1] * im, a[2] * re + a[3] * im)
+}
+
+/// The series impedance r + jx as a matrix.
+fn impedance(r: f64, x: f64) -> M2 {
+    [r, -x, x, r]
+}
+
+/// Per node of one scenario's base case: see the module documentation.
+#[derive(Debug, Clone)]
+pub(crate) struct LinearResponse {
+    /// `A_i`: a node's voltage change per change of its parent's, when no current is injected
+    /// in its subtree (the identity for the head).
+    pub(crate) follow: Vec<M2>,
+    /// `G_i = (1 + Y_i·Z_i)⁻¹`.
+    pub(crate) pass_up: Vec<M2>,
+    /// `H_i = Z_i·G_i`.
+    pub(crate) drop: Vec<M2>,
+}
+
+impl LinearResponse {
+    /// The response around the solved base case `base` of `demand`; where that is not finite
+    /// (a base case without a solution), the response with every load left out.
+    pub(crate) fn new(network: &Network, demand: &Demand, base: &FlowState) -> LinearResponse {
+        let with_loads = LinearResponse::build(network, Some((demand, base)));
+        let finite = [&with_loads.follow, &with_loads.pass_up, &with_loads.drop]
+            .iter()
+            .all(|matrices| matrices.iter().flatten().all(|v| v.is_finite()));
+        if finite {
+            with_loads
+        } else {
+            LinearResponse::build(network, None)
+        }
+    }
+
+    fn build(network: &Network, loads: Option<(&Demand, &FlowState)>) -> LinearResponse {
+        let n = network.n_nodes();
+        let parents = network.parents();
+        let (r, x) = (network.r_pu(), network.x_pu());
+        let mut admittance = vec![[0.0; 4]; n];
+        if let Some((demand, base)) = loads {
+            let (p, q) = (demand.p_pu(), demand.q_pu());
+            let (vr, vi) = (base.v_re(), base.v_im());
+            for i in 1..n {
+                // ΔI = B·conj(ΔV), B = −conj(S) / conj(V)².
+                let (cr, ci) = (vr[i] * vr[i] - vi[i] * vi[i], -2.0 * vr[i] * vi[i]);
+                let d = cr * cr + ci * ci;
+                let (sr, si) = (-p[i], q[i]); // −conj(S)
+                let (br, bi) = ((sr * cr + si * ci) / d, (si * cr - sr * ci) / d);
+                admittance[i] = [br, bi, bi, -br];
+            }
+        }
+        let mut follow = vec![IDENTITY; n];
+        let mut pass_up = vec![IDENTITY; n];
+        let mut drop = vec![[0.0; 4]; n];
+        // Children have higher indices than their parent: walking down the indices completes
+        // each subtree's admittance before it is passed up.
+        for i in (1..n).rev() {
+            let z = impedance(r[i], x[i]);
+            let y = admittance[i];
+            let g = inverse(&add(&IDENTITY, &mul(&y, &z)));
+            let branch = mul(&g, &y);
+            let up = parents[i] as usize;
+            admittance[up] = add(&admittance[up], &branch);
+            follow[i] = sub(&IDENTITY, &mul(&z, &branch));
+            drop[i] = mul(&z, &g);
+            pass_up[i] = g;
+        }
+        LinearResponse {
+            follow,
+            pass_up,
+            drop,
+        }
+    }
+
+    /// Per node of `path` (head first, ending at the injecting node k): the matrix `H_j·P_j`
+    /// its voltage change takes from the injected current, besides following its parent's;
+    /// and the Thévenin matrix of k (its voltage change per injected current).
+    pub(crate) fn path_response(&self, path: &[u32]) -> (Vec<M2>, M2) {
+        let mut terms = vec![[0.0; 4]; path.len()];
+        let mut below = IDENTITY;
+        for (term, &node) in terms.iter_mut().zip(path).rev() {
+            let j = node as usize;
+            *term = mul(&self.drop[j], &below);
+            below = mul(&self.pass_up[j], &below);
+        }
+        let mut thevenin = [0.0; 4];
+        for (term, &node) in terms.iter().zip(path) {
+            thevenin = add(&mul(&self.follow[node as usize], &thevenin), term);
+        }
+        (terms, thevenin)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use headroom_flow::{Injection, SolveSettings, solve};
+    use headroom_model::{BusIdx, Study};
+    use headroom_synth::{SynthSettings, generate};
+
+    /// A small current injected at a node moves the solved voltages as the linear response
+    /// says, to second order: the response is the load flow's own derivative.
+    #[test]
+    fn a_small_injection_moves_the_solution_as_the_linear_response_says() {
+        let feeder = generate(&SynthSettings::new(300, 4))
+            .to_feeder("linear")
+            .unwrap();
+        let prepared = crate::prepare::FeederStudy::prepare(&feeder, &Study::default());
+        let network = &prepared.network;
+        let tight = SolveSettings {
+            tol_pu: 1e-13,
+            max_iterations: 500,
+        };
+        for case in &prepared.cases {
+            let linear = LinearResponse::new(network, &case.demand, &case.base);
+            for k in [1, feeder.n_nodes() / 3, feeder.n_nodes() - 1] {
+                let bus = BusIdx::new(k as u32);
+                let path: Vec<u32> = feeder
+                    .path_to_head(bus)
+                    .map(|b| b.index() as u32)
+                    .collect::<Vec<_>>()
+                    .into_iter()
+                    .rev()
+                    .collect();
+                let (terms, thevenin) = linear.path_response(&path);
+                // A current of 1e-4 pu at the base voltage's angle: P = Re(V·conj(I)).
+                let (vr, vi) = (case.base.v_re()[k], case.base.v_im()[k]);
+                let scale = 1e-4 / vr.hypot(vi);
+                let current = (vr * scale, vi * scale);
+                let p_pu = vr * current.0 + vi * current.1;
+                let q_pu = vi * current.0 - vr * current.1;
+                let mut solved = case.base.clone();
+                let injection = [Injection { bus, p_pu, q_pu }];
+                solve(network, &case.demand, &injection, &mut solved, &tight).unwrap();
+                let mut predicted = vec![(0.0, 0.0); feeder.n_nodes()];
+                let mut on_path = path.iter().zip(&terms).peekable();
+                for i in 0..feeder.n_nodes() {
+                    let (mut dr, mut di) = match i {
+                        0 => (0.0, 0.0),
+                        _ => apply(&linear.follow[i], predicted[network.parents()[i] as usize]),
+                    };
+                    if let Some((_, term)) = on_path.next_if(|(node, _)| **node as usize == i) {
+                        let (tr, ti) = apply(term, current);
+                        (dr, di) = (dr + tr, di + ti);
+                    }
+                    predicted[i] = (dr, di);
+                }
+                let mut worst: f64 = 0.0;
+                let mut largest: f64 = 0.0;
+                for (i, &(dr, di)) in predicted.iter().enumerate() {
+                    let (sr, si) = (
+                        solved.v_re()[i] - case.base.v_re()[i],
+                        solved.v_im()[i] - case.base.v_im()[i],
+                    );
+                    worst = worst.max((sr - dr).hypot(si - di));
+                    largest = largest.max(sr.hypot(si));
+                }
+                // Solved to 1e-13 pu, the change (5e-8 pu next to the head, 1e-5 pu at the far
+                // end) is known to far better than a thousandth; the linear error is of order
+                // change².
+                assert!(largest > 1e-8, "node {k}: no change ({largest:.2e})");
+                assert!(
+                    worst < 1e-3 * largest,
+                    "node {k}: linear response off by {worst:.2e} pu of {largest:.2e}"
+                );
+                let (tr, ti) = apply(&thevenin, current);
+                let (sr, si) = (
+                    solved.v_re()[k] - case.base.v_re()[k],
+                    solved.v_im()[k] - case.base.v_im()[k],
+                );
+                assert!((sr - tr).hypot(si - ti) < 1e-3 * sr.hypot(si));
+            }
+        }
+    }
+}
