@@ -446,15 +446,42 @@ impl Thresholds {
         at: &Snapshot,
         mut visit: impl FnMut(Limit, Element, f64, f64),
     ) {
-        let n = at.v_pu.len();
+        self.for_each_pair(
+            subset,
+            base,
+            [at, at],
+            |limit, element, [q, _], threshold| visit(limit, element, q, threshold),
+        );
+    }
+
+    /// Every (criterion, element) of `subset` in "upper" form at two snapshots: (limit,
+    /// element, quantities, threshold), violated when a quantity > threshold.
+    pub fn for_each_pair(
+        &self,
+        subset: u8,
+        base: &Snapshot,
+        [a, b]: [&Snapshot; 2],
+        mut visit: impl FnMut(Limit, Element, [f64; 2], f64),
+    ) {
+        let n = a.v_pu.len();
         if subset & OVER != 0 {
             for i in 0..n {
-                visit(Limit::Overvoltage, node(i), at.v_pu[i], self.ov[i]);
+                visit(
+                    Limit::Overvoltage,
+                    node(i),
+                    [a.v_pu[i], b.v_pu[i]],
+                    self.ov[i],
+                );
             }
         }
         if subset & UNDER != 0 {
             for i in 0..n {
-                visit(Limit::Undervoltage, node(i), -at.v_pu[i], -self.uv[i]);
+                visit(
+                    Limit::Undervoltage,
+                    node(i),
+                    [-a.v_pu[i], -b.v_pu[i]],
+                    -self.uv[i],
+                );
             }
         }
         if subset & THERMAL != 0 {
@@ -462,22 +489,27 @@ impl Thresholds {
                 visit(
                     Limit::Thermal,
                     Element::Branch(BranchIdx::new(i as u32 - 1)),
-                    at.i_pu[i],
+                    [a.i_pu[i], b.i_pu[i]],
                     self.th[i],
                 );
             }
         }
         if subset & CHANGE != 0 && self.change_pu.is_finite() {
             for i in 0..n {
-                let change = (at.v_pu[i] - base.v_pu[i]).abs();
-                visit(Limit::VoltageChange, node(i), change, self.change_pu);
+                let change = |at: &Snapshot| (at.v_pu[i] - base.v_pu[i]).abs();
+                visit(
+                    Limit::VoltageChange,
+                    node(i),
+                    [change(a), change(b)],
+                    self.change_pu,
+                );
             }
         }
         if subset & REVERSE != 0 && self.head_p_min_pu > f64::NEG_INFINITY {
             visit(
                 Limit::ReverseFlow,
                 Element::Head,
-                -at.head_p_pu,
+                [-a.head_p_pu, -b.head_p_pu],
                 -self.head_p_min_pu,
             );
         }
@@ -501,38 +533,39 @@ pub(crate) fn first_crossing(
     pass: &Snapshot,
     fail: &Snapshot,
 ) -> Option<(Limit, Element)> {
-    let mut quantities_at_pass = Vec::new();
-    thresholds.for_each_quantity(subset, base, pass, |_, _, q, _| quantities_at_pass.push(q));
     let mut best: Option<(f64, Limit, Element)> = None;
-    let mut k = 0;
-    thresholds.for_each_quantity(subset, base, fail, |limit, element, q_fail, threshold| {
-        let q_pass = quantities_at_pass[k];
-        k += 1;
-        if q_fail <= threshold {
-            return;
-        }
-        // Crossing fraction along pass → fail; a pair already beyond at `pass` crosses at 0.
-        let t = if q_pass >= threshold || q_fail == q_pass {
-            0.0
-        } else {
-            ((threshold - q_pass) / (q_fail - q_pass)).clamp(0.0, 1.0)
-        };
-        let better = match best {
-            None => true,
-            Some((t_best, limit_best, element_best)) => {
-                if t < t_best - TIE_FRACTION {
-                    true
-                } else if t <= t_best + TIE_FRACTION {
-                    (limit, element) < (limit_best, element_best)
-                } else {
-                    false
-                }
+    let pair = [pass, fail];
+    thresholds.for_each_pair(
+        subset,
+        base,
+        pair,
+        |limit, element, [q_pass, q_fail], threshold| {
+            if q_fail <= threshold {
+                return;
             }
-        };
-        if better {
-            best = Some((t, limit, element));
-        }
-    });
+            // Crossing fraction along pass → fail; a pair already beyond at `pass` crosses at 0.
+            let t = if q_pass >= threshold || q_fail == q_pass {
+                0.0
+            } else {
+                ((threshold - q_pass) / (q_fail - q_pass)).clamp(0.0, 1.0)
+            };
+            let better = match best {
+                None => true,
+                Some((t_best, limit_best, element_best)) => {
+                    if t < t_best - TIE_FRACTION {
+                        true
+                    } else if t <= t_best + TIE_FRACTION {
+                        (limit, element) < (limit_best, element_best)
+                    } else {
+                        false
+                    }
+                }
+            };
+            if better {
+                best = Some((t, limit, element));
+            }
+        },
+    );
     best.map(|(_, limit, element)| (limit, element))
 }
 

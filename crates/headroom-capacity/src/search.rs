@@ -573,21 +573,16 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             (ir, ii) = (nr, ni);
         }
         let follow = &self.case.linear.follow;
-        let parents = self.study.network.parents();
         let mut on_path = self.path.iter().zip(&self.path_terms).peekable();
-        self.work.set_changes(br, bi, |i, v_re, v_im| {
-            let (mut dr, mut di) = if i == 0 {
-                (0.0, 0.0)
-            } else {
-                let up = parents[i] as usize;
-                apply(&follow[i], (v_re[up] - br[up], v_im[up] - bi[up]))
-            };
-            if let Some((_, term)) = on_path.next_if(|(node, _)| **node as usize == i) {
-                let (tr, ti) = apply(term, (ir, ii));
-                (dr, di) = (dr + tr, di + ti);
-            }
-            (dr, di)
-        });
+        self.work
+            .set_changes(&self.study.network, br, bi, |i, from_parent| {
+                let (mut dr, mut di) = apply(&follow[i], from_parent);
+                if let Some((_, term)) = on_path.next_if(|(node, _)| **node as usize == i) {
+                    let (tr, ti) = apply(term, (ir, ii));
+                    (dr, di) = (dr + tr, di + ti);
+                }
+                (dr, di)
+            });
     }
 
     /// The outcome at `p_kw`, solved once.

@@ -133,24 +133,35 @@ impl FlowState {
         }
     }
 
-    /// Sets every node voltage to `base` (real, imaginary, pu) plus a change computed node by
-    /// node in index order, parents first, from the voltages already set (`change(i, re, im)`
-    /// sees the first `i` of them), for a warm start that propagates down the feeder.
+    /// Sets every node voltage to `base` (real, imaginary, pu) plus a change that propagates
+    /// down the feeder: node by node in index order (parents first), `change(i, parent's)`
+    /// gives node i's change from its parent's ((0, 0) for the head's parent), for a warm start
+    /// predicted by the caller.
     pub fn set_changes(
         &mut self,
+        network: &Network,
         base_re: &[f64],
         base_im: &[f64],
-        mut change: impl FnMut(usize, &[f64], &[f64]) -> (f64, f64),
+        mut change: impl FnMut(usize, (f64, f64)) -> (f64, f64),
     ) {
         let n = self.v_re.len();
-        assert!(
-            base_re.len() == n && base_im.len() == n,
-            "base of another network"
-        );
-        for i in 0..n {
-            let (dr, di) = change(i, &self.v_re[..i], &self.v_im[..i]);
-            self.v_re[i] = base_re[i] + dr;
-            self.v_im[i] = base_im[i] + di;
+        let parent = &network.parent[..n];
+        let (base_re, base_im) = (&base_re[..n], &base_im[..n]);
+        let (v_re, v_im) = (&mut self.v_re[..n], &mut self.v_im[..n]);
+        let mut previous = change(0, (0.0, 0.0));
+        v_re[0] = base_re[0] + previous.0;
+        v_im[0] = base_im[0] + previous.1;
+        for i in 1..n {
+            let up = parent[i] as usize;
+            // The parent is usually the node just before: its change is still at hand.
+            let from = if up + 1 == i {
+                previous
+            } else {
+                (v_re[up] - base_re[up], v_im[up] - base_im[up])
+            };
+            previous = change(i, from);
+            v_re[i] = base_re[i] + previous.0;
+            v_im[i] = base_im[i] + previous.1;
         }
     }
 
