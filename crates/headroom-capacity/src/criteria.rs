@@ -141,6 +141,15 @@ pub(crate) struct Snapshot {
 }
 
 impl Snapshot {
+    /// No nodes: a placeholder.
+    pub fn empty() -> Snapshot {
+        Snapshot {
+            v_pu: Vec::new(),
+            i_pu: Vec::new(),
+            head_p_pu: 0.0,
+        }
+    }
+
     /// What the criteria see in a solved state (the base case; the searches fill theirs while
     /// judging, see [`Thresholds::judge`]).
     pub fn capture(state: &FlowState) -> Snapshot {

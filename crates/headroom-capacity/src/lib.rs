@@ -39,6 +39,7 @@
 mod criteria;
 mod linear;
 mod prepare;
+mod range_min;
 mod run;
 mod screen;
 mod search;

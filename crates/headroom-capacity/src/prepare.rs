@@ -9,6 +9,7 @@ use headroom_model::{BranchIdx, BusIdx, Feeder, Scenario, Study};
 
 use crate::criteria::{Element, Limit, Snapshot, Thresholds, Violation};
 use crate::linear::LinearResponse;
+use crate::range_min::RangeArgmin;
 
 /// One scenario of a prepared feeder: its demand and its solution without new generation.
 #[derive(Debug, Clone)]
@@ -33,6 +34,10 @@ pub struct ScenarioCase {
     /// The base case's linear response to a current injected at a node (the start of solves
     /// far from any solved injection).
     pub(crate) linear: LinearResponse,
+    /// Nodes of least headroom to the overvoltage threshold over index ranges.
+    pub(crate) least_ov_headroom: RangeArgmin,
+    /// Nodes of least headroom to the undervoltage threshold over index ranges.
+    pub(crate) least_uv_headroom: RangeArgmin,
 }
 
 /// Base-case flow of one branch in one scenario.
@@ -158,12 +163,14 @@ impl<'f> FeederStudy<'f> {
                 );
                 let snapshot = Snapshot::capture(&base);
                 let thresholds = Thresholds::new(feeder, &network, &study.limits, &snapshot);
-                let mut subtree_ov_headroom: Vec<f64> = (0..n)
+                let ov_headroom: Vec<f64> = (0..n)
                     .map(|i| thresholds.ov[i] - snapshot.v_pu[i])
                     .collect();
-                let mut subtree_uv_headroom: Vec<f64> = (0..n)
+                let uv_headroom: Vec<f64> = (0..n)
                     .map(|i| snapshot.v_pu[i] - thresholds.uv[i])
                     .collect();
+                let mut subtree_ov_headroom = ov_headroom.clone();
+                let mut subtree_uv_headroom = uv_headroom.clone();
                 for i in (1..n).rev() {
                     let up = parents[i] as usize;
                     subtree_ov_headroom[up] = subtree_ov_headroom[up].min(subtree_ov_headroom[i]);
@@ -179,6 +186,8 @@ impl<'f> FeederStudy<'f> {
                 ScenarioCase {
                     scenario: scenario.clone(),
                     linear,
+                    least_ov_headroom: RangeArgmin::new(ov_headroom),
+                    least_uv_headroom: RangeArgmin::new(uv_headroom),
                     demand_mva_pu,
                     demand,
                     base,

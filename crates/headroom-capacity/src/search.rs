@@ -164,6 +164,26 @@ thread_local! {
 /// Spare solution buffers kept per thread.
 const SPARE_STATES_KEPT: usize = SOLVED_KEPT + 1;
 
+thread_local! {
+    /// Snapshot buffers of finished node answers, reused like [`SPARE_STATES`].
+    static SPARE_SNAPSHOTS: std::cell::RefCell<Vec<Snapshot>> = const { std::cell::RefCell::new(Vec::new()) };
+}
+
+/// Spare snapshot buffers kept per thread: about as many as one node answer solves.
+const SPARE_SNAPSHOTS_KEPT: usize = 16;
+
+/// A snapshot buffer the size of `like`, reused when one is spare; its contents are whatever
+/// the last user left (a judge overwrites all of them) or `like`'s.
+fn spare_snapshot(like: &Snapshot) -> Snapshot {
+    let n = like.v_pu.len();
+    SPARE_SNAPSHOTS
+        .with_borrow_mut(|spare| {
+            spare.retain(|snapshot| snapshot.v_pu.len() == n);
+            spare.pop()
+        })
+        .unwrap_or_else(|| like.clone())
+}
+
 /// A state buffer for `network`, reused when one of its size is spare. Its contents are
 /// whatever the last user left: a warm start overwrites every voltage and a solve every
 /// current.
@@ -189,6 +209,17 @@ impl Drop for Evaluator<'_, '_> {
                 }
             }
         });
+        let seen = std::mem::replace(&mut self.seen, Snapshot::empty());
+        let snapshots = std::mem::take(&mut self.visited)
+            .into_iter()
+            .filter_map(|(_, _, snapshot)| Rc::try_unwrap(snapshot?).ok());
+        SPARE_SNAPSHOTS.with_borrow_mut(|spare| {
+            for snapshot in std::iter::once(seen).chain(snapshots) {
+                if spare.len() < SPARE_SNAPSHOTS_KEPT && snapshot.v_pu.len() == n {
+                    spare.push(snapshot);
+                }
+            }
+        });
     }
 }
 
@@ -196,53 +227,40 @@ impl<'s, 'f> Evaluator<'s, 'f> {
     fn new(study: &'s FeederStudy<'f>, s: usize, bus: BusIdx) -> Evaluator<'s, 'f> {
         let case = &study.cases[s];
         let search = &study.study.search;
-        let n = study.feeder.n_nodes();
-        let mut on_path = vec![false; n];
-        let mut path: Vec<u32> = Vec::new();
-        for node in study.feeder.path_to_head(bus) {
-            on_path[node.index()] = true;
-            path.push(node.index() as u32);
-        }
+        let mut path: Vec<u32> = study
+            .feeder
+            .path_to_head(bus)
+            .map(|node| node.index() as u32)
+            .collect();
         path.reverse();
         let (path_terms, thevenin) = case.linear.path_response(&path);
-        let parents = study.network.parents();
-        // The point where each node's path leaves the plant's, and per such point the node
+        // Per node m of the plant's path, the nodes whose path to the head leaves the plant's
+        // at m (m's subtree less its path child's, two index ranges) and among them the node
         // with the least headroom to each voltage limit: the plant moves every node hanging
         // from one point alike (to first order), so only these can be the first to cross.
-        let (v0, thresholds) = (&case.snapshot.v_pu, &case.thresholds);
-        let mut leaves_at = vec![0u32; n];
-        let mut nearest_ov = vec![0u32; n];
-        let mut nearest_uv = vec![0u32; n];
-        for i in 0..n {
-            let point = if on_path[i] {
-                i
-            } else {
-                leaves_at[parents[i] as usize] as usize
-            };
-            leaves_at[i] = point as u32;
-            if on_path[i] {
-                (nearest_ov[i], nearest_uv[i]) = (i as u32, i as u32);
-            } else {
-                let (o, u) = (nearest_ov[point] as usize, nearest_uv[point] as usize);
-                if thresholds.ov[i] - v0[i] < thresholds.ov[o] - v0[o] {
-                    nearest_ov[point] = i as u32;
-                }
-                if v0[i] - thresholds.uv[i] < v0[u] - thresholds.uv[u] {
-                    nearest_uv[point] = i as u32;
-                }
-            }
-        }
+        let end = |node: u32| study.feeder.subtree_end(BusIdx::new(node)).index();
         let mut watched = Watched::default();
-        for node in study.feeder.path_to_head(bus) {
-            let m = node.index();
-            watched.nodes.push(m as u32);
-            for extra in [nearest_ov[m], nearest_uv[m]] {
-                if extra as usize != m && watched.nodes.last() != Some(&extra) {
-                    watched.nodes.push(extra);
+        for (at, &m) in path.iter().enumerate().rev() {
+            let ranges = match path.get(at + 1) {
+                Some(&child) => [(m as usize + 1, child as usize), (end(child), end(m))],
+                None => [(m as usize + 1, end(m)), (0, 0)],
+            };
+            watched.nodes.push(m);
+            for table in [&case.least_ov_headroom, &case.least_uv_headroom] {
+                let mut nearest = m;
+                for (start, stop) in ranges {
+                    if let Some(node) = table.least(start, stop)
+                        && table.key(node) < table.key(nearest)
+                    {
+                        nearest = node;
+                    }
+                }
+                if nearest != m && watched.nodes.last() != Some(&nearest) {
+                    watched.nodes.push(nearest);
                 }
             }
             if m != 0 {
-                watched.branches.push(m as u32);
+                watched.branches.push(m);
             }
         }
         Evaluator {
@@ -262,7 +280,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             path_terms,
             thevenin,
             watched,
-            seen: case.snapshot.clone(),
+            seen: spare_snapshot(&case.snapshot),
             outcomes: HashMap::new(),
             visited: Vec::new(),
             nose_kw: 1000.0
@@ -597,7 +615,11 @@ impl<'s, 'f> Evaluator<'s, 'f> {
     fn point(&mut self, p_kw: f64, purpose: Purpose) -> (Outcome, Option<Rc<Snapshot>>) {
         let outcome = self.solve_at(p_kw, purpose);
         let snapshot = match outcome {
-            Outcome::Converged(_) => Some(Rc::new(self.seen.clone())),
+            // The judge overwrites the whole snapshot: a spare buffer takes its place.
+            Outcome::Converged(_) => {
+                let fresh = spare_snapshot(&self.case.snapshot);
+                Some(Rc::new(std::mem::replace(&mut self.seen, fresh)))
+            }
             Outcome::Failed => None,
         };
         (outcome, snapshot)
