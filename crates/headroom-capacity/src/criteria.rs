@@ -129,8 +129,8 @@ pub(crate) const WORSE_EPS_PU: f64 = 1e-8;
 /// load flow.
 pub(crate) const NEAR_PU: f64 = 1e-8;
 
-/// What one solved injection looks like to the criteria.
-#[derive(Debug, Clone)]
+/// What one solved injection looks like to the criteria (no nodes by default).
+#[derive(Debug, Clone, Default)]
 pub(crate) struct Snapshot {
     /// Voltage magnitude per node, pu.
     pub v_pu: Vec<f64>,
@@ -141,15 +141,6 @@ pub(crate) struct Snapshot {
 }
 
 impl Snapshot {
-    /// No nodes: a placeholder.
-    pub fn empty() -> Snapshot {
-        Snapshot {
-            v_pu: Vec::new(),
-            i_pu: Vec::new(),
-            head_p_pu: 0.0,
-        }
-    }
-
     /// What the criteria see in a solved state (the base case; the searches fill theirs while
     /// judging, see [`Thresholds::judge`]).
     pub fn capture(state: &FlowState) -> Snapshot {

@@ -21,7 +21,7 @@
 use headroom_flow::{Demand, FlowState, Network};
 
 /// A real 2×2 matrix, row-major, acting on (re, im).
-pub(crate) type M2 = [f64; 4];
+type M2 = [f64; 4];
 
 const IDENTITY: M2 = [1.0, 0.0, 0.0, 1.0];
 
@@ -48,7 +48,7 @@ fn inverse(a: &M2) -> M2 {
 }
 
 /// `a` applied to the vector (re, im).
-pub(crate) fn apply(a: &M2, (re, im): (f64, f64)) -> (f64, f64) {
+fn apply(a: &M2, (re, im): (f64, f64)) -> (f64, f64) {
     (a[0] * re + a[1] * im, a[2] * re + a[3] * im)
 }
 
@@ -124,22 +124,67 @@ impl LinearResponse {
         }
     }
 
-    /// Per node of `path` (head first, ending at the injecting node k): the matrix `H_j·P_j`
-    /// its voltage change takes from the injected current, besides following its parent's;
-    /// and the Thévenin matrix of k (its voltage change per injected current).
-    pub(crate) fn path_response(&self, path: &[u32]) -> (Vec<M2>, M2) {
+    /// The response to a current injected at the end of `path` (head first, ending at the
+    /// injecting node k).
+    pub(crate) fn path_response(&self, path: Vec<u32>) -> PathResponse {
         let mut terms = vec![[0.0; 4]; path.len()];
         let mut below = IDENTITY;
-        for (term, &node) in terms.iter_mut().zip(path).rev() {
+        for (term, &node) in terms.iter_mut().zip(&path).rev() {
             let j = node as usize;
             *term = mul(&self.drop[j], &below);
             below = mul(&self.pass_up[j], &below);
         }
         let mut thevenin = [0.0; 4];
-        for (term, &node) in terms.iter().zip(path) {
+        for (term, &node) in terms.iter().zip(&path) {
             thevenin = add(&mul(&self.follow[node as usize], &thevenin), term);
         }
-        (terms, thevenin)
+        PathResponse {
+            path,
+            terms,
+            thevenin,
+        }
+    }
+}
+
+/// [`LinearResponse`] to a current injected at one node k.
+#[derive(Debug, Clone)]
+pub(crate) struct PathResponse {
+    /// k's path to the head, head first (increasing indices).
+    path: Vec<u32>,
+    /// Per node of the path, `H_j·P_j`: what its voltage change takes from the current, besides
+    /// following its parent's.
+    terms: Vec<M2>,
+    /// k's Thévenin matrix: its voltage change per injected current.
+    thevenin: M2,
+}
+
+impl PathResponse {
+    /// The voltage change at k from an injected `current` (re, im; pu).
+    pub(crate) fn at_node(&self, current: (f64, f64)) -> (f64, f64) {
+        apply(&self.thevenin, current)
+    }
+
+    /// Sets `work` to `base` plus the linear change from an injected `current` (re, im; pu).
+    pub(crate) fn set_changed(
+        &self,
+        linear: &LinearResponse,
+        network: &Network,
+        base: &FlowState,
+        current: (f64, f64),
+        work: &mut FlowState,
+    ) {
+        let follow = &linear.follow;
+        let mut on_path = self.path.iter().zip(&self.terms).peekable();
+        work.set_changes(network, base.v_re(), base.v_im(), |i, from_parent| {
+            let (dr, di) = apply(&follow[i], from_parent);
+            match on_path.next_if(|(node, _)| **node as usize == i) {
+                Some((_, term)) => {
+                    let (tr, ti) = apply(term, current);
+                    (dr + tr, di + ti)
+                }
+                None => (dr, di),
+            }
+        });
     }
 }
 
@@ -167,14 +212,10 @@ mod tests {
             let linear = LinearResponse::new(network, &case.demand, &case.base);
             for k in [1, feeder.n_nodes() / 3, feeder.n_nodes() - 1] {
                 let bus = BusIdx::new(k as u32);
-                let path: Vec<u32> = feeder
-                    .path_to_head(bus)
-                    .map(|b| b.index() as u32)
-                    .collect::<Vec<_>>()
-                    .into_iter()
-                    .rev()
-                    .collect();
-                let (terms, thevenin) = linear.path_response(&path);
+                let mut path: Vec<u32> =
+                    feeder.path_to_head(bus).map(|b| b.index() as u32).collect();
+                path.reverse();
+                let response = linear.path_response(path);
                 // A current of 1e-4 pu at the base voltage's angle: P = Re(V·conj(I)).
                 let (vr, vi) = (case.base.v_re()[k], case.base.v_im()[k]);
                 let scale = 1e-4 / vr.hypot(vi);
@@ -184,19 +225,16 @@ mod tests {
                 let mut solved = case.base.clone();
                 let injection = [Injection { bus, p_pu, q_pu }];
                 solve(network, &case.demand, &injection, &mut solved, &tight).unwrap();
-                let mut predicted = vec![(0.0, 0.0); feeder.n_nodes()];
-                let mut on_path = path.iter().zip(&terms).peekable();
-                for i in 0..feeder.n_nodes() {
-                    let (mut dr, mut di) = match i {
-                        0 => (0.0, 0.0),
-                        _ => apply(&linear.follow[i], predicted[network.parents()[i] as usize]),
-                    };
-                    if let Some((_, term)) = on_path.next_if(|(node, _)| **node as usize == i) {
-                        let (tr, ti) = apply(term, current);
-                        (dr, di) = (dr + tr, di + ti);
-                    }
-                    predicted[i] = (dr, di);
-                }
+                let mut started = case.base.clone();
+                response.set_changed(&linear, network, &case.base, current, &mut started);
+                let predicted: Vec<(f64, f64)> = (0..feeder.n_nodes())
+                    .map(|i| {
+                        (
+                            started.v_re()[i] - case.base.v_re()[i],
+                            started.v_im()[i] - case.base.v_im()[i],
+                        )
+                    })
+                    .collect();
                 let mut worst: f64 = 0.0;
                 let mut largest: f64 = 0.0;
                 for (i, &(dr, di)) in predicted.iter().enumerate() {
@@ -215,7 +253,7 @@ mod tests {
                     worst < 1e-3 * largest,
                     "node {k}: linear response off by {worst:.2e} pu of {largest:.2e}"
                 );
-                let (tr, ti) = apply(&thevenin, current);
+                let (tr, ti) = response.at_node(current);
                 let (sr, si) = (
                     solved.v_re()[k] - case.base.v_re()[k],
                     solved.v_im()[k] - case.base.v_im()[k],

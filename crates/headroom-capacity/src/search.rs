@@ -1,8 +1,10 @@
 //! The capacity search at one node in one scenario: the stepped reference, the certified fast
 //! search, the per-criterion capacities and the binding (criterion, element).
 
+use std::cell::RefCell;
 use std::collections::HashMap;
 use std::rc::Rc;
+use std::thread::LocalKey;
 
 use headroom_flow::{FlowState, Injection, NotConvergedReason, Patience, SolveSettings, solve};
 use headroom_model::BusIdx;
@@ -11,7 +13,7 @@ use crate::criteria::{
     ALL, CHANGE, Element, Limit, Margins, OVER, REVERSE, Snapshot, THERMAL, UNDER, Watched,
     first_crossing, predict_crossing_pu,
 };
-use crate::linear::{M2, apply};
+use crate::linear::PathResponse;
 use crate::prepare::{FeederStudy, ScenarioCase};
 
 /// How the capacity is searched. Both return the same numbers.
@@ -133,12 +135,8 @@ struct Evaluator<'s, 'f> {
     solved: Vec<FlowState>,
     solved_p_pu: [f64; SOLVED_KEPT],
     newest: usize,
-    /// The plant's path to the head, head first (increasing indices), with per node of it the
-    /// matrix its voltage change takes from the plant's current, and the plant node's Thévenin
-    /// matrix ([`LinearResponse::path_response`]).
-    path: Vec<u32>,
-    path_terms: Vec<M2>,
-    thevenin: M2,
+    /// The base case's linear response to the plant's current.
+    response: PathResponse,
     /// The elements extrapolating predictions look at: the nodes of the plant's path, per
     /// node of it the off-path node nearest to each voltage limit, the branches of the path.
     watched: Watched,
@@ -158,30 +156,42 @@ struct Evaluator<'s, 'f> {
 thread_local! {
     /// Solution buffers of finished node answers, reused by the next ones on the same thread
     /// instead of being allocated and filled again.
-    static SPARE_STATES: std::cell::RefCell<Vec<FlowState>> = const { std::cell::RefCell::new(Vec::new()) };
+    static SPARE_STATES: RefCell<Vec<FlowState>> = const { RefCell::new(Vec::new()) };
+    /// Snapshot buffers of finished node answers, reused likewise.
+    static SPARE_SNAPSHOTS: RefCell<Vec<Snapshot>> = const { RefCell::new(Vec::new()) };
 }
 
 /// Spare solution buffers kept per thread.
 const SPARE_STATES_KEPT: usize = SOLVED_KEPT + 1;
 
-thread_local! {
-    /// Snapshot buffers of finished node answers, reused like [`SPARE_STATES`].
-    static SPARE_SNAPSHOTS: std::cell::RefCell<Vec<Snapshot>> = const { std::cell::RefCell::new(Vec::new()) };
-}
-
 /// Spare snapshot buffers kept per thread: about as many as one node answer solves.
 const SPARE_SNAPSHOTS_KEPT: usize = 16;
 
-/// A snapshot buffer the size of `like`, reused when one is spare; its contents are whatever
-/// the last user left (a judge overwrites all of them) or `like`'s.
-fn spare_snapshot(like: &Snapshot) -> Snapshot {
-    let n = like.v_pu.len();
-    SPARE_SNAPSHOTS
-        .with_borrow_mut(|spare| {
-            spare.retain(|snapshot| snapshot.v_pu.len() == n);
-            spare.pop()
-        })
-        .unwrap_or_else(|| like.clone())
+/// A spare buffer of `pool` that `fits` (one that does not is dropped).
+fn take_spare<T: 'static>(
+    pool: &'static LocalKey<RefCell<Vec<T>>>,
+    fits: impl Fn(&T) -> bool,
+) -> Option<T> {
+    pool.with_borrow_mut(|spare| {
+        spare.retain(&fits);
+        spare.pop()
+    })
+}
+
+/// Keeps the `buffers` that `fit` as spares of `pool`, up to `kept` of them.
+fn keep_spares<T: 'static>(
+    pool: &'static LocalKey<RefCell<Vec<T>>>,
+    buffers: impl IntoIterator<Item = T>,
+    kept: usize,
+    fits: impl Fn(&T) -> bool,
+) {
+    pool.with_borrow_mut(|spare| {
+        for buffer in buffers {
+            if spare.len() < kept && fits(&buffer) {
+                spare.push(buffer);
+            }
+        }
+    });
 }
 
 /// A state buffer for `network`, reused when one of its size is spare. Its contents are
@@ -189,12 +199,16 @@ fn spare_snapshot(like: &Snapshot) -> Snapshot {
 /// current.
 fn spare_state(network: &headroom_flow::Network) -> FlowState {
     let n = network.n_nodes();
-    SPARE_STATES
-        .with_borrow_mut(|spare| {
-            spare.retain(|state| state.n_nodes() == n);
-            spare.pop()
-        })
+    take_spare(&SPARE_STATES, |state| state.n_nodes() == n)
         .unwrap_or_else(|| FlowState::flat(network))
+}
+
+/// A snapshot buffer the size of `like`, reused when one is spare; its contents are whatever
+/// the last user left (a judge overwrites all of them) or `like`'s.
+fn spare_snapshot(like: &Snapshot) -> Snapshot {
+    let n = like.v_pu.len();
+    take_spare(&SPARE_SNAPSHOTS, |snapshot| snapshot.v_pu.len() == n)
+        .unwrap_or_else(|| like.clone())
 }
 
 impl Drop for Evaluator<'_, '_> {
@@ -202,24 +216,19 @@ impl Drop for Evaluator<'_, '_> {
         let n = self.work.n_nodes();
         let mut states = std::mem::take(&mut self.solved);
         states.push(std::mem::replace(&mut self.work, FlowState::empty()));
-        SPARE_STATES.with_borrow_mut(|spare| {
-            for state in states {
-                if spare.len() < SPARE_STATES_KEPT && state.n_nodes() == n {
-                    spare.push(state);
-                }
-            }
+        keep_spares(&SPARE_STATES, states, SPARE_STATES_KEPT, |state| {
+            state.n_nodes() == n
         });
-        let seen = std::mem::replace(&mut self.seen, Snapshot::empty());
         let snapshots = std::mem::take(&mut self.visited)
             .into_iter()
             .filter_map(|(_, _, snapshot)| Rc::try_unwrap(snapshot?).ok());
-        SPARE_SNAPSHOTS.with_borrow_mut(|spare| {
-            for snapshot in std::iter::once(seen).chain(snapshots) {
-                if spare.len() < SPARE_SNAPSHOTS_KEPT && snapshot.v_pu.len() == n {
-                    spare.push(snapshot);
-                }
-            }
-        });
+        let seen = std::mem::take(&mut self.seen);
+        keep_spares(
+            &SPARE_SNAPSHOTS,
+            std::iter::once(seen).chain(snapshots),
+            SPARE_SNAPSHOTS_KEPT,
+            |snapshot| snapshot.v_pu.len() == n,
+        );
     }
 }
 
@@ -233,7 +242,6 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             .map(|node| node.index() as u32)
             .collect();
         path.reverse();
-        let (path_terms, thevenin) = case.linear.path_response(&path);
         // Per node m of the plant's path, the nodes whose path to the head leaves the plant's
         // at m (m's subtree less its path child's, two index ranges) and among them the node
         // with the least headroom to each voltage limit: the plant moves every node hanging
@@ -276,9 +284,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             solved: Vec::with_capacity(SOLVED_KEPT),
             solved_p_pu: [f64::NAN; SOLVED_KEPT],
             newest: 0,
-            path,
-            path_terms,
-            thevenin,
+            response: case.linear.path_response(path),
             watched,
             seen: spare_snapshot(&case.snapshot),
             outcomes: HashMap::new(),
@@ -581,26 +587,18 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         let base = &self.case.base;
         let (br, bi) = (base.v_re(), base.v_im());
         let k = plant.k;
-        let (mut ir, mut ii) = plant.current(br[k], bi[k]);
+        let mut current = plant.current(br[k], bi[k]);
         for _ in 0..3 {
-            let (dr, di) = apply(&self.thevenin, (ir, ii));
-            let (nr, ni) = plant.current(br[k] + dr, bi[k] + di);
-            if !(nr.is_finite() && ni.is_finite()) {
+            let (dr, di) = self.response.at_node(current);
+            let next = plant.current(br[k] + dr, bi[k] + di);
+            if !(next.0.is_finite() && next.1.is_finite()) {
                 break;
             }
-            (ir, ii) = (nr, ni);
+            current = next;
         }
-        let follow = &self.case.linear.follow;
-        let mut on_path = self.path.iter().zip(&self.path_terms).peekable();
-        self.work
-            .set_changes(&self.study.network, br, bi, |i, from_parent| {
-                let (mut dr, mut di) = apply(&follow[i], from_parent);
-                if let Some((_, term)) = on_path.next_if(|(node, _)| **node as usize == i) {
-                    let (tr, ti) = apply(term, (ir, ii));
-                    (dr, di) = (dr + tr, di + ti);
-                }
-                (dr, di)
-            });
+        let network = &self.study.network;
+        self.response
+            .set_changed(&self.case.linear, network, base, current, &mut self.work);
     }
 
     /// The outcome at `p_kw`, solved once.
