@@ -201,6 +201,8 @@ pub(crate) struct Margins {
     /// Smallest distance of any branch current to its thermal threshold, or of the head's
     /// power to its reverse-flow threshold (1 MVA base).
     pub flow_pu: f64,
+    /// The lowest node voltage, pu.
+    pub lowest_v_pu: f64,
 }
 
 impl Margins {
@@ -225,6 +227,8 @@ struct Scan {
     margin_v: [f64; LANES],
     /// Smallest distance of any current to its threshold.
     margin_i: [f64; LANES],
+    /// Lowest voltage.
+    lowest_v: [f64; LANES],
 }
 
 impl Scan {
@@ -239,6 +243,7 @@ impl Scan {
             thermal: [f64::MIN; LANES],
             margin_v: [f64::INFINITY; LANES],
             margin_i: [f64::INFINITY; LANES],
+            lowest_v: [f64::INFINITY; LANES],
         }
     }
 
@@ -293,6 +298,11 @@ impl Scan {
                 ea
             } else {
                 self.margin_i[l]
+            };
+            self.lowest_v[l] = if v[l] < self.lowest_v[l] {
+                v[l]
+            } else {
+                self.lowest_v[l]
             };
         }
         (v, current)
@@ -407,6 +417,7 @@ impl Thresholds {
             thermal,
             margin_v,
             margin_i,
+            lowest_v,
             ..
         } = acc;
         let largest = |lanes: [f64; LANES]| lanes.into_iter().fold(f64::MIN, f64::max);
@@ -420,6 +431,7 @@ impl Thresholds {
         let mut margins = Margins {
             voltage_pu: smallest(margin_v),
             flow_pu: smallest(margin_i),
+            lowest_v_pu: smallest(lowest_v),
         };
         i_out[0] = 0.0;
         let head_p = head_p_pu(state);
@@ -570,89 +582,30 @@ pub(crate) fn first_crossing(
 }
 
 /// The smallest injection (pu) at which some element of `subset` is predicted to cross its
-/// threshold, from solved injections `points` in increasing order: by the straight line through
-/// two, or by the parabola through three, extrapolated beyond the last where it does not
-/// reach between them; over the elements of `watched`, or all. Infinite when nothing is
-/// heading for its threshold.
-///
-/// # Panics
-/// Unless two or three points are given.
+/// threshold, by the straight line through two solved injections `a` and `b` (in increasing
+/// order), over the elements of `watched`, or all. Infinite when nothing is heading for its
+/// threshold.
 pub(crate) fn predict_crossing_pu(
     thresholds: &Thresholds,
     subset: u8,
     base: &Snapshot,
-    points: &[(f64, &Snapshot)],
+    [(p_a, a), (p_b, b)]: [(f64, &Snapshot); 2],
     watched: Option<&Watched>,
 ) -> f64 {
-    match *points {
-        [(p_a, a), (p_b, b)] => {
-            let dp = p_b - p_a;
-            // Where the line through (p_a, q_a) and (p_b, q_b) reaches the threshold, for rising
-            // quantities (a select, not a branch).
-            let line = |[q_a, q_b]: [f64; 2], threshold: f64| {
-                let rise = q_b - q_a;
-                let f = (threshold - q_a) / rise;
-                if rise > 0.0 {
-                    p_a + f * dp
-                } else {
-                    f64::INFINITY
-                }
-            };
-            earliest_crossing(thresholds, subset, base, [a, b], watched, line)
+    let dp = p_b - p_a;
+    // Where the line through (p_a, q_a) and (p_b, q_b) reaches the threshold, for rising
+    // quantities (a select, not a branch).
+    let line = |[q_a, q_b]: [f64; 2], threshold: f64| {
+        let rise = q_b - q_a;
+        let f = (threshold - q_a) / rise;
+        if rise > 0.0 {
+            p_a + f * dp
+        } else {
+            f64::INFINITY
         }
-        [(p_0, s_0), (p_1, s_1), (p_2, s_2)] => {
-            // The parabola costs a square root and divisions per element: it is worked out
-            // only for the elements whose line through the last two points crosses within a
-            // few times the distance of the earliest such crossing.
-            let d_12 = p_2 - p_1;
-            let line = |q_1: f64, q_2: f64, threshold: f64| {
-                let rise = q_2 - q_1;
-                if rise > 0.0 {
-                    p_2 + (threshold - q_2) / rise * d_12
-                } else {
-                    f64::INFINITY
-                }
-            };
-            let at = [s_0, s_1, s_2];
-            let first_line = earliest_crossing(
-                thresholds,
-                subset,
-                base,
-                at,
-                watched,
-                |[_, q_1, q_2], threshold| line(q_1, q_2, threshold),
-            );
-            let bound = p_2 + PARABOLA_REACH * (first_line - p_2).max(0.0);
-            let (inv_01, inv_12, inv_02) = (1.0 / (p_1 - p_0), 1.0 / d_12, 1.0 / (p_2 - p_0));
-            let parabola = |[q_0, q_1, q_2]: [f64; 3], threshold: f64| {
-                if line(q_1, q_2, threshold) > bound {
-                    return f64::INFINITY;
-                }
-                // q(p_2 + x) = q_2 + slope·x + curve·x² through the three points.
-                let d_01 = (q_1 - q_0) * inv_01;
-                let d_12 = (q_2 - q_1) * inv_12;
-                let curve = (d_12 - d_01) * inv_02;
-                let slope = d_12 + curve * (p_2 - p_1);
-                let rest = threshold - q_2;
-                let disc = slope * slope + 4.0 * curve * rest;
-                // The root nearest 0 on the rising side, in the form that stays accurate as
-                // the curvature vanishes; the tangent where the parabola bends away first.
-                let x = if disc >= 0.0 {
-                    2.0 * rest / (slope + disc.sqrt())
-                } else {
-                    rest / slope
-                };
-                if x >= 0.0 { p_2 + x } else { f64::INFINITY }
-            };
-            earliest_crossing(thresholds, subset, base, at, watched, parabola)
-        }
-        _ => panic!("a crossing is predicted from two or three solved injections"),
-    }
+    };
+    earliest_crossing(thresholds, subset, base, [a, b], watched, line)
 }
-
-/// How far beyond the last point, in multiples of the earliest straight-line crossing's
-/// distance, the parabola of [`predict_crossing_pu`] is worked out.
-const PARABOLA_REACH: f64 = 3.0;
 
 /// The elements a prediction looks at, when not all: node indices for the voltage criteria,
 /// node indices whose feeding branch is looked at for the thermal one.

@@ -37,6 +37,7 @@
 #![deny(missing_docs)]
 
 mod criteria;
+mod forecast;
 mod linear;
 mod prepare;
 mod range_min;

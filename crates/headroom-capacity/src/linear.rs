@@ -21,11 +21,11 @@
 use headroom_flow::{Demand, FlowState, Network};
 
 /// A real 2×2 matrix, row-major, acting on (re, im).
-type M2 = [f64; 4];
+pub(crate) type M2 = [f64; 4];
 
-const IDENTITY: M2 = [1.0, 0.0, 0.0, 1.0];
+pub(crate) const IDENTITY: M2 = [1.0, 0.0, 0.0, 1.0];
 
-fn mul(a: &M2, b: &M2) -> M2 {
+pub(crate) fn mul(a: &M2, b: &M2) -> M2 {
     [
         a[0] * b[0] + a[1] * b[2],
         a[0] * b[1] + a[1] * b[3],
@@ -38,7 +38,7 @@ fn add(a: &M2, b: &M2) -> M2 {
     [a[0] + b[0], a[1] + b[1], a[2] + b[2], a[3] + b[3]]
 }
 
-fn sub(a: &M2, b: &M2) -> M2 {
+pub(crate) fn sub(a: &M2, b: &M2) -> M2 {
     [a[0] - b[0], a[1] - b[1], a[2] - b[2], a[3] - b[3]]
 }
 
@@ -48,7 +48,7 @@ fn inverse(a: &M2) -> M2 {
 }
 
 /// `a` applied to the vector (re, im).
-fn apply(a: &M2, (re, im): (f64, f64)) -> (f64, f64) {
+pub(crate) fn apply(a: &M2, (re, im): (f64, f64)) -> (f64, f64) {
     (a[0] * re + a[1] * im, a[2] * re + a[3] * im)
 }
 
@@ -67,6 +67,9 @@ pub(crate) struct LinearResponse {
     pub(crate) pass_up: Vec<M2>,
     /// `H_i = Z_i·G_i`.
     pub(crate) drop: Vec<M2>,
+    /// `G_i·Y_i`: the change of the current into node i's branch per change of its parent's
+    /// voltage, when no current is injected in its subtree.
+    pub(crate) branch: Vec<M2>,
 }
 
 impl LinearResponse {
@@ -74,9 +77,14 @@ impl LinearResponse {
     /// (a base case without a solution), the response with every load left out.
     pub(crate) fn new(network: &Network, demand: &Demand, base: &FlowState) -> LinearResponse {
         let with_loads = LinearResponse::build(network, Some((demand, base)));
-        let finite = [&with_loads.follow, &with_loads.pass_up, &with_loads.drop]
-            .iter()
-            .all(|matrices| matrices.iter().flatten().all(|v| v.is_finite()));
+        let finite = [
+            &with_loads.follow,
+            &with_loads.pass_up,
+            &with_loads.drop,
+            &with_loads.branch,
+        ]
+        .iter()
+        .all(|matrices| matrices.iter().flatten().all(|v| v.is_finite()));
         if finite {
             with_loads
         } else {
@@ -104,6 +112,7 @@ impl LinearResponse {
         let mut follow = vec![IDENTITY; n];
         let mut pass_up = vec![IDENTITY; n];
         let mut drop = vec![[0.0; 4]; n];
+        let mut branches = vec![[0.0; 4]; n];
         // Children have higher indices than their parent: walking down the indices completes
         // each subtree's admittance before it is passed up.
         for i in (1..n).rev() {
@@ -116,11 +125,13 @@ impl LinearResponse {
             follow[i] = sub(&IDENTITY, &mul(&z, &branch));
             drop[i] = mul(&z, &g);
             pass_up[i] = g;
+            branches[i] = branch;
         }
         LinearResponse {
             follow,
             pass_up,
             drop,
+            branch: branches,
         }
     }
 
@@ -128,11 +139,13 @@ impl LinearResponse {
     /// injecting node k).
     pub(crate) fn path_response(&self, path: Vec<u32>) -> PathResponse {
         let mut terms = vec![[0.0; 4]; path.len()];
+        let mut shares = vec![[0.0; 4]; path.len()];
         let mut below = IDENTITY;
-        for (term, &node) in terms.iter_mut().zip(&path).rev() {
+        for ((term, share), &node) in terms.iter_mut().zip(&mut shares).zip(&path).rev() {
             let j = node as usize;
             *term = mul(&self.drop[j], &below);
             below = mul(&self.pass_up[j], &below);
+            *share = below;
         }
         let mut thevenin = [0.0; 4];
         for (term, &node) in terms.iter().zip(&path) {
@@ -141,6 +154,7 @@ impl LinearResponse {
         PathResponse {
             path,
             terms,
+            shares,
             thevenin,
         }
     }
@@ -154,28 +168,65 @@ pub(crate) struct PathResponse {
     /// Per node of the path, `H_j·P_j`: what its voltage change takes from the current, besides
     /// following its parent's.
     terms: Vec<M2>,
+    /// Per node of the path, `G_j·P_j`: the share of the current that flows up its branch
+    /// (the head's entry unused).
+    shares: Vec<M2>,
     /// k's Thévenin matrix: its voltage change per injected current.
     thevenin: M2,
 }
 
 impl PathResponse {
+    /// k's path to the head, head first.
+    pub(crate) fn path(&self) -> &[u32] {
+        &self.path
+    }
+
+    /// k's Thévenin matrix: its voltage change per injected current.
+    pub(crate) fn thevenin(&self) -> &M2 {
+        &self.thevenin
+    }
+
+    /// Per node of the path (head first): its voltage change per injected current, and the
+    /// change of the current into its branch per injected current (the head's: the change of
+    /// the current the head sends into the feeder).
+    pub(crate) fn along_path(&self, linear: &LinearResponse) -> Vec<(M2, M2)> {
+        let mut out = Vec::with_capacity(self.path.len());
+        let mut parent_change = [0.0; 4];
+        for (at, (&node, term)) in self.path.iter().zip(&self.terms).enumerate() {
+            let j = node as usize;
+            let change = add(&mul(&linear.follow[j], &parent_change), term);
+            // ΔJ_j = G_j·Y_j·ΔV_parent − G_j·P_j·ΔI: the loads' answer less the plant's share.
+            let current = sub(&mul(&linear.branch[j], &parent_change), &self.shares[at]);
+            out.push((change, current));
+            parent_change = change;
+        }
+        // The head sends into the feeder what its path child's branch draws more (its other
+        // branches see no change at the held head voltage).
+        if out.len() > 1 {
+            out[0].1 = out[1].1;
+        }
+        out
+    }
+
     /// The voltage change at k from an injected `current` (re, im; pu).
     pub(crate) fn at_node(&self, current: (f64, f64)) -> (f64, f64) {
         apply(&self.thevenin, current)
     }
 
-    /// Sets `work` to `base` plus the linear change from an injected `current` (re, im; pu).
+    /// Sets `work` to `base` plus the linear change from an injected `current` (re, im; pu);
+    /// with `blend` = (anchor, s), to `base + s·(anchor − base)` plus that change instead.
     pub(crate) fn set_changed(
         &self,
         linear: &LinearResponse,
         network: &Network,
         base: &FlowState,
+        blend: Option<(&FlowState, f64)>,
         current: (f64, f64),
         work: &mut FlowState,
     ) {
         let follow = &linear.follow;
         let mut on_path = self.path.iter().zip(&self.terms).peekable();
-        work.set_changes(network, base.v_re(), base.v_im(), |i, from_parent| {
+        let change = |i: usize, from_parent| {
             let (dr, di) = apply(&follow[i], from_parent);
             match on_path.next_if(|(node, _)| **node as usize == i) {
                 Some((_, term)) => {
@@ -184,7 +235,19 @@ impl PathResponse {
                 }
                 None => (dr, di),
             }
-        });
+        };
+        let (br, bi) = (base.v_re(), base.v_im());
+        match blend {
+            None => work.set_changes(network, |i| (br[i], bi[i]), change),
+            Some((anchor, s)) => {
+                let (ar, ai) = (anchor.v_re(), anchor.v_im());
+                work.set_changes(
+                    network,
+                    |i| (br[i] + s * (ar[i] - br[i]), bi[i] + s * (ai[i] - bi[i])),
+                    change,
+                )
+            }
+        }
     }
 }
 
@@ -226,7 +289,7 @@ mod tests {
                 let injection = [Injection { bus, p_pu, q_pu }];
                 solve(network, &case.demand, &injection, &mut solved, &tight).unwrap();
                 let mut started = case.base.clone();
-                response.set_changed(&linear, network, &case.base, current, &mut started);
+                response.set_changed(&linear, network, &case.base, None, current, &mut started);
                 let predicted: Vec<(f64, f64)> = (0..feeder.n_nodes())
                     .map(|i| {
                         (
@@ -253,6 +316,21 @@ mod tests {
                     worst < 1e-3 * largest,
                     "node {k}: linear response off by {worst:.2e} pu of {largest:.2e}"
                 );
+                // Along the path, the branch currents (and the head's) move as predicted too.
+                let path = response.path().to_vec();
+                for (&node, (_, current_change)) in path.iter().zip(response.along_path(&linear)) {
+                    let j = node as usize;
+                    let (pr, pi) = apply(&current_change, current);
+                    let (sr, si) = (
+                        solved.j_re()[j] - case.base.j_re()[j],
+                        solved.j_im()[j] - case.base.j_im()[j],
+                    );
+                    assert!(
+                        (sr - pr).hypot(si - pi) < 1e-3 * 1e-4,
+                        "node {k}, path node {j}: current change {sr:.3e}{si:+.3e}j, \
+                         predicted {pr:.3e}{pi:+.3e}j"
+                    );
+                }
                 let (tr, ti) = response.at_node(current);
                 let (sr, si) = (
                     solved.v_re()[k] - case.base.v_re()[k],

@@ -34,6 +34,10 @@ pub struct ScenarioCase {
     /// The base case's linear response to a current injected at a node (the start of solves
     /// far from any solved injection).
     pub(crate) linear: LinearResponse,
+    /// Bound on how much one sweep shrinks a solve's error, times the square of the lowest
+    /// node voltage (pu²): over every node, the sum along its path of each branch's |Z| times
+    /// the |S| of the demand it feeds (see [`crate::search`]'s settled verdicts).
+    pub(crate) sweep_contraction: f64,
     /// Nodes of least headroom to the overvoltage threshold over index ranges.
     pub(crate) least_ov_headroom: RangeArgmin,
     /// Nodes of least headroom to the undervoltage threshold over index ranges.
@@ -70,6 +74,8 @@ pub struct FeederStudy<'f> {
     pub(crate) path_r_pu: Vec<f64>,
     /// Cumulative series reactance from the head to each node, pu.
     pub(crate) path_x_pu: Vec<f64>,
+    /// Cumulative |Z| of the series impedances from the head to each node, pu.
+    pub(crate) path_z_abs_pu: Vec<f64>,
     pub(crate) solve_settings: SolveSettings,
 }
 
@@ -140,10 +146,13 @@ impl<'f> FeederStudy<'f> {
         let parents = network.parents();
         let mut path_r_pu = vec![0.0; n];
         let mut path_x_pu = vec![0.0; n];
+        let mut path_z_abs_pu = vec![0.0; n];
+        let branch_z_abs = |i: usize| network.r_pu()[i].hypot(network.x_pu()[i]);
         for i in 1..n {
             let up = parents[i] as usize;
             path_r_pu[i] = path_r_pu[up] + network.r_pu()[i];
             path_x_pu[i] = path_x_pu[up] + network.x_pu()[i];
+            path_z_abs_pu[i] = path_z_abs_pu[up] + branch_z_abs(i);
         }
         let cases = study
             .scenarios
@@ -183,7 +192,21 @@ impl<'f> FeederStudy<'f> {
                     .map(|(p, q)| p.hypot(*q))
                     .sum();
                 let linear = LinearResponse::new(&network, &demand, &base);
+                // Σ |S| of each subtree, then along every path Σ |Z|·(that sum).
+                let mut fed: Vec<f64> = (0..n)
+                    .map(|i| demand.p_pu()[i].hypot(demand.q_pu()[i]))
+                    .collect();
+                for i in (1..n).rev() {
+                    let up = parents[i] as usize;
+                    fed[up] += fed[i];
+                }
+                let mut along = vec![0.0; n];
+                for i in 1..n {
+                    along[i] = along[parents[i] as usize] + branch_z_abs(i) * fed[i];
+                }
+                let sweep_contraction = along.iter().copied().fold(0.0, f64::max);
                 ScenarioCase {
+                    sweep_contraction,
                     scenario: scenario.clone(),
                     linear,
                     least_ov_headroom: RangeArgmin::new(ov_headroom),
@@ -206,6 +229,7 @@ impl<'f> FeederStudy<'f> {
             cases,
             path_r_pu,
             path_x_pu,
+            path_z_abs_pu,
             solve_settings,
         }
     }

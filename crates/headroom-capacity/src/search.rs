@@ -13,6 +13,7 @@ use crate::criteria::{
     ALL, CHANGE, Element, Limit, Margins, OVER, REVERSE, Snapshot, THERMAL, UNDER, Watched,
     first_crossing, predict_crossing_pu,
 };
+use crate::forecast::Forecast;
 use crate::linear::PathResponse;
 use crate::prepare::{FeederStudy, ScenarioCase};
 
@@ -140,6 +141,8 @@ struct Evaluator<'s, 'f> {
     /// The elements extrapolating predictions look at: the nodes of the plant's path, per
     /// node of it the off-path node nearest to each voltage limit, the branches of the path.
     watched: Watched,
+    /// The linear forecast over `watched`, built by the first fast search.
+    forecast: Option<Forecast>,
     /// What the criteria saw in the last solve.
     seen: Snapshot,
     outcomes: HashMap<u64, Outcome>,
@@ -285,6 +288,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             solved_p_pu: [f64::NAN; SOLVED_KEPT],
             newest: 0,
             response: case.linear.path_response(path),
+            forecast: None,
             watched,
             seen: spare_snapshot(&case.snapshot),
             outcomes: HashMap::new(),
@@ -320,12 +324,6 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             None => self.kw(self.max_steps),
         };
         reached_kw >= NOSE_FRACTION * self.nose_kw
-    }
-
-    /// The last converged injection and its solution.
-    fn last(&self) -> Option<(f64, &FlowState)> {
-        let p_pu = self.solved_p_pu[self.newest];
-        (!p_pu.is_nan()).then(|| (p_pu, &self.solved[self.newest]))
     }
 
     /// Solves the injection of `p_kw`; a converged solution is kept as the last one.
@@ -369,17 +367,26 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         // remaining error, the verdict is already the converged one. Otherwise go on to the
         // study's tolerance, and within a hair of a threshold to a tighter one still, so that
         // verdicts do not depend on where the solve started. A verdict alone also stands once
-        // every quantity is far from its threshold compared with the last sweep's change.
-        // An error δ in the voltages that feed a branch moves its current by up to the power
-        // it carries (pu) times δ, so the margin asked of currents and of the head's power
-        // grows with the demand and the plant.
-        let flow_per_voltage = 1.0 + case.demand_mva_pu + p_pu.hypot(p_pu * self.q_per_p);
+        // every quantity is farther from its threshold than the error left after the last
+        // sweep can be ([`error_bounds`]).
+        let s_plant_pu = p_pu.hypot(p_pu * self.q_per_p);
+        let flow_per_voltage = 1.0 + case.demand_mva_pu + s_plant_pu;
+        let contraction =
+            case.sweep_contraction + s_plant_pu * study.path_z_abs_pu[self.bus.index()];
+        let head_v_pu = network.head_v_pu();
+        let bounds = |margins: Margins| {
+            error_bounds(
+                contraction,
+                margins.lowest_v_pu,
+                flow_per_voltage * head_v_pu,
+            )
+        };
         let settled = |margins: Margins, mismatch_pu: f64, stage_margin_pu: f64| match purpose {
             Purpose::Crossing => margins.least_pu() > stage_margin_pu,
             Purpose::Verdict => {
-                let asked_pu = SETTLED_MARGIN_PER_CHANGE * mismatch_pu;
-                margins.voltage_pu > stage_margin_pu.min(asked_pu)
-                    && margins.flow_pu > stage_margin_pu.min(asked_pu * flow_per_voltage)
+                let (per_voltage, per_flow) = bounds(margins);
+                margins.voltage_pu > stage_margin_pu.min(per_voltage * mismatch_pu)
+                    && margins.flow_pu > stage_margin_pu.min(per_flow * mismatch_pu)
             }
         };
         // (tolerance, margin that settles a verdict there); `None`: the aimed stage below.
@@ -402,11 +409,12 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             let (tol_pu, settled_margin_pu) = match (stages[this], reached) {
                 (Some(fixed), _) => fixed,
                 // A verdict alone, not settled at the loose tolerance: solve on just until its
-                // margins are twice what a hundred times the last change asks, when that
+                // margins are twice what the error bounds ask of the last change, when that
                 // stops short of the study's tolerance.
                 (None, Some((mismatch_pu, margins))) if purpose == Purpose::Verdict => {
-                    let aim_pu = 0.5 * margins.voltage_pu.min(margins.flow_pu / flow_per_voltage)
-                        / SETTLED_MARGIN_PER_CHANGE;
+                    let (per_voltage, per_flow) = bounds(margins);
+                    let aim_pu =
+                        0.5 * (margins.voltage_pu / per_voltage).min(margins.flow_pu / per_flow);
                     if !(aim_pu > settings.tol_pu && aim_pu < mismatch_pu) {
                         continue;
                     }
@@ -561,6 +569,16 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                 _ => {}
             }
         }
+        // Far beyond the two nearest (farther than they are apart), the secant's bend is
+        // off: the linear response corrected at the nearest solved injection does better.
+        if let [Some((a, _)), other] = nearest
+            && a > 0.0
+            && other.is_none_or(|(b, _)| (p_pu - a).abs() > (a - b).abs())
+            && let Some(slot) = (0..self.solved.len()).find(|&slot| self.solved_p_pu[slot] == a)
+        {
+            self.start_linear(p_pu, Some((a, slot)));
+            return;
+        }
         let [Some(near), Some(other)] = nearest else {
             self.start_from_base(p_pu);
             return;
@@ -579,6 +597,13 @@ impl<'s, 'f> Evaluator<'s, 'f> {
     /// response included ([`LinearResponse`]). The current is taken at the plant's own voltage
     /// on its Thévenin equivalent (a few fixed-point steps from the base voltage).
     fn start_from_base(&mut self, p_pu: f64) {
+        self.start_linear(p_pu, None);
+    }
+
+    /// Like [`Evaluator::start_from_base`], corrected by the linear response's error at a
+    /// solved injection `anchor` (pu, solution): the response is the load flow's derivative at
+    /// P = 0, so its error grows as P², and the anchor's, scaled by (P / P_a)², is added.
+    fn start_linear(&mut self, p_pu: f64, anchor: Option<(f64, usize)>) {
         let plant = Plant {
             k: self.bus.index(),
             p_pu,
@@ -587,18 +612,52 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         let base = &self.case.base;
         let (br, bi) = (base.v_re(), base.v_im());
         let k = plant.k;
-        let mut current = plant.current(br[k], bi[k]);
-        for _ in 0..3 {
-            let (dr, di) = self.response.at_node(current);
-            let next = plant.current(br[k] + dr, bi[k] + di);
-            if !(next.0.is_finite() && next.1.is_finite()) {
-                break;
+        // The plant's current where the node's voltage is base + response + `extra`, from a
+        // first guess.
+        let fixed_point = |plant: &Plant, extra: (f64, f64), mut current: (f64, f64)| {
+            let (vr, vi) = (br[k] + extra.0, bi[k] + extra.1);
+            for _ in 0..3 {
+                let (dr, di) = self.response.at_node(current);
+                let next = plant.current(vr + dr, vi + di);
+                if !(next.0.is_finite() && next.1.is_finite()) {
+                    break;
+                }
+                current = next;
             }
-            current = next;
-        }
+            current
+        };
         let network = &self.study.network;
-        self.response
-            .set_changed(&self.case.linear, network, base, current, &mut self.work);
+        let Some((p_a, slot)) = anchor else {
+            let current = fixed_point(&plant, (0.0, 0.0), plant.current(br[k], bi[k]));
+            self.response.set_changed(
+                &self.case.linear,
+                network,
+                base,
+                None,
+                current,
+                &mut self.work,
+            );
+            return;
+        };
+        let solved = &self.solved[slot];
+        // The anchor's error is taken at its own plant current, so that the start at P_a is
+        // the anchor's solution itself.
+        let i_a = current_of(p_a, plant.q_per_p, solved.v_re()[k], solved.v_im()[k]);
+        let (dr, di) = self.response.at_node(i_a);
+        let (er, ei) = (solved.v_re()[k] - br[k] - dr, solved.v_im()[k] - bi[k] - di);
+        let s = ((p_pu / p_a) * (p_pu / p_a)).min(ANCHOR_SCALE_MAX);
+        let ratio = p_pu / p_a;
+        let i_p = fixed_point(&plant, (s * er, s * ei), (ratio * i_a.0, ratio * i_a.1));
+        let current = (i_p.0 - s * i_a.0, i_p.1 - s * i_a.1);
+        let solved = &self.solved[slot];
+        self.response.set_changed(
+            &self.case.linear,
+            network,
+            base,
+            Some((solved, s)),
+            current,
+            &mut self.work,
+        );
     }
 
     /// The outcome at `p_kw`, solved once.
@@ -623,14 +682,11 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         (outcome, snapshot)
     }
 
-    /// Estimate of where `subset` binds, pu, from the node's model anchored at a solved
-    /// injection (`anchor_p_pu`, `anchor`; the base case is the anchor at 0): the node's Thévenin
-    /// equivalent — base voltage behind the path impedance, the two-bus system, solved exactly —
-    /// corrected by its error at the anchor, for the voltage criteria of the node's subtree; the
-    /// current of every branch on the path to the head moved by the plant's current from the
-    /// anchor on; the head power for reverse flow. Elements off the plant's path are left to the
-    /// secant predictions.
-    fn model_estimate_pu(&self, subset: u8, anchor_p_pu: f64, anchor: &FlowState) -> f64 {
+    /// A first guess of where `subset` binds, pu, from the node's two-bus model: its base voltage
+    /// behind the path impedance, solved exactly, for the voltage criteria of the node's subtree;
+    /// the plant's current added to every branch current on the path to the head; the head power
+    /// for reverse flow. It leaves the loads' response out; [`Forecast`] starts from it.
+    fn two_bus_estimate_pu(&self, subset: u8) -> f64 {
         let k = self.bus.index();
         let case = self.case;
         let base = &case.snapshot;
@@ -639,23 +695,10 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         let qpp = self.q_per_p;
         let v0 = base.v_pu[k];
         let rise_per_pu = (r + x * qpp) / v0;
-        // The model's voltage change scaled to the solved one at the anchor (the loads along
-        // the way take a share of the plant's current roughly in proportion).
-        let scale = if anchor_p_pu == 0.0 {
-            1.0
-        } else {
-            let model = two_bus_voltage(v0, anchor_p_pu, r, x, qpp) - v0;
-            let solved = anchor.v_mag_pu(k) - v0;
-            if model.is_finite() && model != 0.0 && solved / model > 0.5 && solved / model < 2.0 {
-                solved / model
-            } else {
-                1.0
-            }
-        };
         let mut best = f64::INFINITY;
         let mut to_voltage = |target: f64| {
-            let p = two_bus_p_for_voltage(v0, v0 + (target - v0) / scale, r, x, qpp);
-            if p >= anchor_p_pu {
+            let p = two_bus_p_for_voltage(v0, target, r, x, qpp);
+            if p >= 0.0 {
                 best = best.min(p);
             }
         };
@@ -668,29 +711,43 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         if subset & CHANGE != 0 && thresholds.change_pu.is_finite() && rise_per_pu != 0.0 {
             to_voltage(v0 + thresholds.change_pu.copysign(rise_per_pu));
         }
+        let state = &case.base;
         if subset & THERMAL != 0 {
-            // Current injected per pu of P at the anchor's voltage: conj(S / V), S = 1 + j·qpp.
-            let (vr, vi) = (anchor.v_re()[k], anchor.v_im()[k]);
+            // Current injected per pu of P at the base voltage: conj(S / V), S = 1 + j·qpp.
+            let (vr, vi) = (state.v_re()[k], state.v_im()[k]);
             let inv = 1.0 / (vr * vr + vi * vi);
             let (ur, ui) = ((vr + qpp * vi) * inv, (vi - qpp * vr) * inv);
             let u2 = ur * ur + ui * ui;
             let mut at = k;
             while at != 0 {
                 // |J − s·u| = limit: s²|u|² − 2s·Re(J·conj u) + |J|² − limit² = 0, one root
-                // above 0 while the branch is within its limit at the anchor.
-                let (jr, ji) = (anchor.j_re()[at], anchor.j_im()[at]);
+                // above 0 while the branch is within its limit.
+                let (jr, ji) = (state.j_re()[at], state.j_im()[at]);
                 let a = jr * ur + ji * ui;
                 let c = jr * jr + ji * ji - thresholds.th[at] * thresholds.th[at];
                 let s = (a + (a * a - u2 * c).max(0.0).sqrt()) / u2;
-                best = best.min(anchor_p_pu + s);
+                best = best.min(s);
                 at = self.study.network.parents()[at] as usize;
             }
         }
         if subset & REVERSE != 0 && thresholds.head_p_min_pu > f64::NEG_INFINITY {
-            let head_p = crate::criteria::head_p_pu(anchor);
-            best = best.min(anchor_p_pu + (head_p - thresholds.head_p_min_pu).max(0.0));
+            let head_p = crate::criteria::head_p_pu(state);
+            best = best.min((head_p - thresholds.head_p_min_pu).max(0.0));
         }
         best
+    }
+
+    /// The linear forecast's crossing of `subset`, pu: see [`Forecast::crossing_pu`].
+    fn forecast_pu(&self, subset: u8, anchor: Option<(f64, &Snapshot)>, guess_pu: f64) -> f64 {
+        let forecast = self.forecast.as_ref().expect("built by the fast search");
+        forecast.crossing_pu(
+            &self.case.thresholds,
+            subset,
+            &self.case.snapshot,
+            anchor,
+            self.q_per_p,
+            guess_pu,
+        )
     }
 
     /// The fast search for `subset` from a known pass at `lo` (with its snapshot and an earlier
@@ -701,72 +758,52 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             mut lo,
             mut lo_snap,
             mut below,
-            mut older,
             mut hi,
         } = start;
         let to_steps = 1000.0 / self.resolution_kw; // pu → resolutions (1 MVA base)
         // The search for every criterion together ends on the pass and failure that locate the
         // binding element; the per-criterion searches need verdicts only. Its first evaluation,
-        // from the node's model alone, is seldom one of those two: it is solved for its verdict,
-        // and solved on if it ends the search after all.
+        // at the linear forecast, is usually one of those two.
         let purpose = if subset == ALL {
             Purpose::Crossing
         } else {
             Purpose::Verdict
         };
-        let mut verdict_only: Option<u64> = None;
         // Evaluations made while the answer was bracketed; past a few, predictions are not
         // closing in (a kink in the criteria, or no solution above) and bisection takes over.
         let mut bracketed_evaluations = 0;
+        if self.forecast.is_none() {
+            self.forecast = Some(Forecast::new(
+                &self.case.linear,
+                &self.response,
+                self.study.network.parents(),
+                &self.case.base,
+                &self.watched,
+            ));
+        }
         loop {
             let upper = hi.as_ref().map_or(self.max_steps + 1, |(h, _)| *h);
             if lo >= self.max_steps || upper == lo + 1 {
-                if let Some(first) = verdict_only {
-                    if first == lo {
-                        let (_, snapshot) = self.point(self.kw(lo), Purpose::Crossing);
-                        lo_snap = snapshot.expect("a passing injection converges again");
-                    } else if let Some((h, h_snap @ Some(_))) = &mut hi
-                        && *h == first
-                    {
-                        *h_snap = self.point(self.kw(first), Purpose::Crossing).1;
-                    }
-                }
                 return FastAnswer { lo, lo_snap, hi };
             }
             let lo_pu = self.kw(lo) / 1000.0;
             let predicted_pu = match (&hi, &below) {
                 // Interpolate between the pass and a solved failure.
                 (Some((h, Some(h_snap))), _) => {
-                    self.predict(subset, &[(lo, &lo_snap), (*h, h_snap)], false)
+                    self.predict(subset, [(lo, &lo_snap), (*h, h_snap)], false)
                 }
-                // Extrapolate from the last two passes, and from the model anchored at the pass.
+                // Beyond the last pass: the linear forecast anchored there, its secant rounds
+                // started from the line through the last two passes.
                 (_, Some((b, b_snap))) => {
-                    // The parabola through three passes or the line through two; and the node's
-                    // model anchored at the last pass where that comes first — except for the
-                    // thermal limits once a parabola is at hand: their model leaves the loads'
-                    // share of the current out and falls short, the parabola does not.
-                    let (curve, modelled) = match &older {
-                        Some((o, o_snap)) => (
-                            self.predict(
-                                subset,
-                                &[(*o, o_snap), (*b, b_snap), (lo, &lo_snap)],
-                                true,
-                            ),
-                            subset & !THERMAL,
-                        ),
-                        None => (
-                            self.predict(subset, &[(*b, b_snap), (lo, &lo_snap)], true),
-                            subset,
-                        ),
-                    };
-                    match self.last() {
-                        Some((p_pu, state)) if p_pu == lo_pu => {
-                            curve.min(self.model_estimate_pu(modelled, lo_pu, state))
-                        }
-                        _ => curve,
-                    }
+                    let guess = self.predict(subset, [(*b, b_snap), (lo, &lo_snap)], true);
+                    self.forecast_pu(subset, Some((lo_pu, &lo_snap)), guess)
                 }
-                (_, None) => self.model_estimate_pu(subset, 0.0, &self.case.base),
+                // From the base case: the forecast alone, its rounds started from the node's
+                // two-bus model.
+                (_, None) => {
+                    let guess = self.two_bus_estimate_pu(subset);
+                    self.forecast_pu(subset, None, guess)
+                }
             };
             let predicted = predicted_pu * to_steps;
             let mut steps =
@@ -783,17 +820,10 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             if hi.is_some() {
                 bracketed_evaluations += 1;
             }
-            let purpose = if purpose == Purpose::Crossing && self.visited.is_empty() {
-                verdict_only = Some(steps);
-                Purpose::Verdict
-            } else {
-                purpose
-            };
             let (outcome, snapshot) = self.point(self.kw(steps), purpose);
             self.visited.push((steps, outcome, snapshot.clone()));
             if outcome.passes(subset) {
                 let snap = snapshot.expect("a passing injection has converged");
-                older = below.take();
                 below = Some((lo, std::mem::replace(&mut lo_snap, snap)));
                 lo = steps;
             } else {
@@ -834,30 +864,25 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         FastStart {
             lo,
             lo_snap: Rc::clone(lo_snap),
-            older: below
-                .as_ref()
-                .filter(|(steps, _)| *steps > 0)
-                .map(|_| (0, Rc::clone(base))),
             below,
             hi: failure.map(|(steps, _, snapshot)| (*steps, snapshot.clone())),
         }
     }
 
-    /// The predicted crossing of `subset` (pu) from solved injections in increasing order (in
-    /// resolutions): see [`predict_crossing_pu`]. Beyond the last solved injection only the
-    /// watched elements are looked at; between a pass and a failure every element is, so that
-    /// whatever failed is seen.
-    fn predict(&self, subset: u8, points: &[(u64, &Snapshot)], beyond: bool) -> f64 {
+    /// The predicted crossing of `subset` (pu) on the line through two solved injections, in
+    /// increasing order (in resolutions): see [`predict_crossing_pu`]. Beyond the last solved
+    /// injection only the watched elements are looked at; between a pass and a failure every
+    /// element is, so that whatever failed is seen.
+    fn predict(&self, subset: u8, [a, b]: [(u64, &Snapshot); 2], beyond: bool) -> f64 {
         let pu_per_step = self.resolution_kw / 1000.0;
-        let mut at = [(0.0, &self.case.snapshot); 3];
-        for (slot, &(steps, snapshot)) in at.iter_mut().zip(points) {
-            *slot = (steps as f64 * pu_per_step, snapshot);
-        }
         predict_crossing_pu(
             &self.case.thresholds,
             subset,
             &self.case.snapshot,
-            &at[..points.len()],
+            [
+                (a.0 as f64 * pu_per_step, a.1),
+                (b.0 as f64 * pu_per_step, b.1),
+            ],
             beyond.then_some(&self.watched),
         )
     }
@@ -918,12 +943,53 @@ const LOOSE_TOL_PU: f64 = 1e-6;
 const SETTLED_MARGIN_PU: f64 = 1e-4;
 
 /// A verdict alone stands at any stage when every quantity is at least this many times the last
-/// sweep's largest voltage change from its threshold. The sweep shrinks its error by a factor
-/// ρ < 1 per sweep, so a solution whose last sweep moved it by δ is within about δ·ρ/(1 − ρ) of
-/// the converged one: under a hundredth of the margin while ρ < 0.99, the assumption
-/// [`SETTLED_MARGIN_PU`] makes of every solve at the loose tolerance. A solve slow enough for ρ
-/// to come near 1 takes more than [`SLOW_SWEEPS`] and is settled by the tight stage instead.
+/// sweep's largest voltage change from its threshold, where [`error_bounds`] has no bound to
+/// give. The sweep shrinks its error by a factor ρ < 1 per sweep, so a solution whose last
+/// sweep moved it by δ is within about δ·ρ/(1 − ρ) of the converged one: under a hundredth of
+/// the margin while ρ < 0.99, the assumption [`SETTLED_MARGIN_PU`] makes of every solve at the
+/// loose tolerance. A solve slow enough for ρ to come near 1 takes more than [`SLOW_SWEEPS`]
+/// and is settled by the tight stage instead.
 const SETTLED_MARGIN_PER_CHANGE: f64 = 100.0;
+
+/// The error bounds of [`error_bounds`] are doubled (rounding, and room to spare).
+const ERROR_BOUND_SAFETY: f64 = 2.0;
+
+/// [`error_bounds`] holds for node voltages at least this much below the lowest one solved
+/// (pu), and so for a last sweep's change up to it.
+const VOLTAGE_ROOM_PU: f64 = 0.01;
+
+/// How far the quantities of a solved state can be from the converged solution's, per unit of
+/// the last sweep's largest voltage change δ: (node voltages, branch currents and head power).
+///
+/// One sweep computes every load's current I_j = conj(S_j / V_j) from the voltages V it starts
+/// from, sums them up the feeder, and sets V_i = V_head − Σ Z_b·J_b over the branches b on node
+/// i's path. Against the solution V*, |I_j(V) − I_j(V*)| = |S_j|·|V_j − V*_j| / (|V_j|·|V*_j|),
+/// so the error e = V − V* shrinks per sweep by at least the factor
+/// ρ = max over i of Σ_{b on i's path} |Z_b| · Σ_{j fed by b} |S_j| / v_lo²,
+/// v_lo a lower bound of every |V_j| and |V*_j|: `contraction` is that sum (the plant's own |S|
+/// over its whole path included) and v_lo is the lowest solved voltage less
+/// [`VOLTAGE_ROOM_PU`]. With the last sweep's change δ, the error after it is at most
+/// ρ·δ / (1 − ρ); the branch currents come from the voltages before that sweep, whose error is
+/// at most δ / (1 − ρ), times the |S| they feed over v_lo², and the head power's is that times
+/// the head voltage (`flow_per_voltage`: |S| of everything, plant included, times the head
+/// voltage). Without a bound (ρ ≥ 1/2, or voltages too low), the fixed factor
+/// [`SETTLED_MARGIN_PER_CHANGE`] stands in.
+fn error_bounds(contraction: f64, lowest_v_pu: f64, flow_per_voltage: f64) -> (f64, f64) {
+    let v_lo = lowest_v_pu - VOLTAGE_ROOM_PU;
+    let rho = contraction / (v_lo * v_lo);
+    if v_lo > 0.5 && rho < 0.5 {
+        let per_error = ERROR_BOUND_SAFETY / (1.0 - rho);
+        (
+            per_error * rho,
+            per_error * flow_per_voltage / (v_lo * v_lo),
+        )
+    } else {
+        (
+            SETTLED_MARGIN_PER_CHANGE,
+            SETTLED_MARGIN_PER_CHANGE * flow_per_voltage,
+        )
+    }
+}
 
 /// Tolerance of the last stage, for verdicts within [`crate::criteria::NEAR_PU`] of a
 /// threshold, pu. Solutions reached from different starting points agree far closer than that
@@ -945,6 +1011,9 @@ const PATIENT_SWEEPS: u32 = 10_000;
 /// network's own nose lay within 15 % of it; ordinary limits bind far below (1.10 pu at 0.15).
 const NOSE_FRACTION: f64 = 0.5;
 
+/// The largest factor a linear start's error at a solved injection is scaled by ((P / P_a)²).
+const ANCHOR_SCALE_MAX: f64 = 9.0;
+
 /// Converged injections kept for warm starts.
 const SOLVED_KEPT: usize = 4;
 
@@ -955,6 +1024,7 @@ const DETAIL_ORDER: [usize; 4] = [1, 2, 0, 3];
 /// Predicted evaluations allowed once the answer is bracketed, before bisecting.
 const MAX_PREDICTED_IN_BRACKET: u32 = 4;
 
+#[cfg(test)]
 /// The receiving-end voltage of the same two-bus system at injection `p` (pu): the larger root
 /// of the quartic; NaN past the nose of the curve.
 fn two_bus_voltage(vs: f64, p: f64, r: f64, x: f64, q_per_p: f64) -> f64 {
@@ -1015,7 +1085,7 @@ impl Plant {
 }
 
 /// conj(S / V) for S = p·(1 + j·`q_per_p`) at voltage `vr + j·vi` (pu).
-fn current_of(p: f64, q_per_p: f64, vr: f64, vi: f64) -> (f64, f64) {
+pub(crate) fn current_of(p: f64, q_per_p: f64, vr: f64, vi: f64) -> (f64, f64) {
     let q = p * q_per_p;
     let inv = 1.0 / (vr * vr + vi * vi);
     ((p * vr + q * vi) * inv, (p * vi - q * vr) * inv)
@@ -1075,7 +1145,6 @@ struct FastStart {
     lo: u64,
     lo_snap: Rc<Snapshot>,
     below: Option<(u64, Rc<Snapshot>)>,
-    older: Option<(u64, Rc<Snapshot>)>,
     hi: Option<(u64, Option<Rc<Snapshot>>)>,
 }
 
@@ -1153,7 +1222,6 @@ impl FeederStudy<'_> {
                         lo: 0,
                         lo_snap: base_snap.clone(),
                         below: None,
-                        older: None,
                         hi: None,
                     },
                 );
@@ -1316,6 +1384,163 @@ mod tests {
                 "node {k}: the start is {off:.2e} pu from the solution, the rise {rise:.2e} pu"
             );
         }
+    }
+
+    /// Corrected by its error at a solved injection, the linear start is that solution there,
+    /// and far beyond it (twice the injection) much closer to the solution than the base
+    /// case's linear start or the secant through the solved injection and the base case.
+    #[test]
+    fn the_start_corrected_at_a_solved_injection_stays_close_far_beyond_it() {
+        let feeder = generate(&SynthSettings::new(1000, 1))
+            .to_feeder("anchored")
+            .unwrap();
+        let prepared = FeederStudy::prepare(&feeder, &Study::default());
+        let case = &prepared.cases[0];
+        let n = feeder.n_nodes();
+        let tight = SolveSettings {
+            tol_pu: 1e-13,
+            max_iterations: 500,
+        };
+        let solved_at = |bus: BusIdx, p_pu: f64| {
+            let mut exact = case.base.clone();
+            let injection = [Injection {
+                bus,
+                p_pu,
+                q_pu: 0.0,
+            }];
+            solve(
+                &prepared.network,
+                &case.demand,
+                &injection,
+                &mut exact,
+                &tight,
+            )
+            .unwrap();
+            exact
+        };
+        for k in [n / 4, n / 2, n - 1] {
+            let bus = BusIdx::new(k as u32);
+            let mut eval = Evaluator::new(&prepared, 0, bus);
+            let p_a = prepared.network.kw_to_pu(1500.0);
+            let anchor = solved_at(bus, p_a);
+            eval.solved.push(anchor.clone());
+            eval.solved_p_pu[0] = p_a;
+            eval.start_linear(p_a, Some((p_a, 0)));
+            assert!(
+                farthest(&eval.work, &anchor) < 1e-12,
+                "node {k}: not the anchor"
+            );
+            let p = 2.0 * p_a;
+            let exact = solved_at(bus, p);
+            let rise = farthest(&exact, &case.base);
+            eval.start_linear(p, Some((p_a, 0)));
+            let corrected = farthest(&eval.work, &exact);
+            eval.start_from_base(p);
+            let from_base = farthest(&eval.work, &exact);
+            let plant = Plant {
+                k,
+                p_pu: p,
+                q_per_p: 0.0,
+            };
+            assert!(start_from_secant(
+                &mut eval.work,
+                &plant,
+                (p_a, &anchor),
+                (0.0, &case.base)
+            ));
+            let secant = farthest(&eval.work, &exact);
+            assert!(
+                corrected < 1e-5 * rise && corrected < 0.2 * from_base.min(secant),
+                "node {k}: corrected start {corrected:.2e} pu off, base's {from_base:.2e}, \
+                 secant {secant:.2e}, rise {rise:.2e}"
+            );
+        }
+    }
+
+    /// The error bounds hold sweep by sweep on real solves: stopped after any sweep, the
+    /// voltages are within half of `error_bounds`' first factor (the safety factor left out)
+    /// times that sweep's change of the converged solution, and the branch currents within half
+    /// of the second.
+    #[test]
+    fn a_sweep_leaves_no_more_error_than_the_bounds_allow() {
+        let feeder = generate(&SynthSettings::new(600, 2))
+            .to_feeder("bounds")
+            .unwrap();
+        let prepared = FeederStudy::prepare(&feeder, &Study::default());
+        let n = feeder.n_nodes();
+        let tight = SolveSettings {
+            tol_pu: 1e-13,
+            max_iterations: 500,
+        };
+        let one_sweep = SolveSettings {
+            tol_pu: 0.0,
+            max_iterations: 1,
+        };
+        let mut checked = 0;
+        for (s, case) in prepared.cases.iter().enumerate() {
+            for k in [n / 3, 2 * n / 3, n - 1] {
+                let bus = BusIdx::new(k as u32);
+                let p_pu = prepared.network.kw_to_pu(2000.0);
+                let injection = [Injection {
+                    bus,
+                    p_pu,
+                    q_pu: 0.0,
+                }];
+                let mut exact = case.base.clone();
+                solve(
+                    &prepared.network,
+                    &case.demand,
+                    &injection,
+                    &mut exact,
+                    &tight,
+                )
+                .unwrap();
+                let contraction = case.sweep_contraction + p_pu * prepared.path_z_abs_pu[k];
+                let flow_per_voltage =
+                    (1.0 + case.demand_mva_pu + p_pu) * prepared.network.head_v_pu();
+                let mut eval = Evaluator::new(&prepared, s, bus);
+                eval.start_from_base(p_pu);
+                let mut state = eval.work.clone();
+                for _ in 0..6 {
+                    let Err(stopped) = solve(
+                        &prepared.network,
+                        &case.demand,
+                        &injection,
+                        &mut state,
+                        &one_sweep,
+                    ) else {
+                        break;
+                    };
+                    let delta = stopped.mismatch_pu;
+                    if delta < 1e-12 {
+                        break;
+                    }
+                    let lowest = (0..n)
+                        .map(|i| state.v_mag_pu(i))
+                        .fold(f64::INFINITY, f64::min);
+                    let (per_voltage, per_flow) =
+                        error_bounds(contraction, lowest, flow_per_voltage);
+                    assert!(per_voltage < 1.0, "no bound: {per_voltage}");
+                    let v_error = farthest(&state, &exact);
+                    let i_error = (1..n)
+                        .map(|i| {
+                            (state.j_re()[i] - exact.j_re()[i])
+                                .hypot(state.j_im()[i] - exact.j_im()[i])
+                        })
+                        .fold(0.0, f64::max);
+                    assert!(
+                        v_error <= 0.5 * per_voltage * delta,
+                        "node {k}: voltage error {v_error:.2e} pu after a change of {delta:.2e}"
+                    );
+                    assert!(
+                        i_error <= 0.5 * per_flow * delta,
+                        "node {k}: current error {i_error:.2e} pu after a change of {delta:.2e}"
+                    );
+                    checked += 1;
+                }
+            }
+        }
+        assert!(checked >= 12, "only {checked} sweeps checked");
     }
 
     /// Next to the nose of the P–V curve the sweep shrinks its error slowly (by about 0.92 per
