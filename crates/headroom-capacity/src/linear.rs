@@ -213,39 +213,98 @@ impl PathResponse {
         apply(&self.thevenin, current)
     }
 
+    /// Fills `out` with the voltage change at every node per unit current injected at k, real
+    /// and imaginary: one pass down the feeder for both.
+    pub(crate) fn unit_changes(
+        &self,
+        linear: &LinearResponse,
+        network: &Network,
+        out: &mut UnitChanges,
+    ) {
+        let n = network.n_nodes();
+        let parents = &network.parents()[..n];
+        let follow = &linear.follow[..n];
+        out.resize(n);
+        let UnitChanges { re, im } = out;
+        let (re, im) = (&mut re[..n], &mut im[..n]);
+        // Per node: the change per unit real current (re[0], im[0]) and per unit imaginary
+        // current (re[1], im[1]), in [f64; 2] pairs.
+        re[0] = [0.0; 2];
+        im[0] = [0.0; 2];
+        let mut on_path = self.path.iter().zip(&self.terms).skip(1).peekable();
+        let mut previous = ([0.0; 2], [0.0; 2]);
+        for i in 1..n {
+            let up = parents[i] as usize;
+            // The parent is usually the node just before: its change is still at hand.
+            let (pr, pi) = if up + 1 == i {
+                previous
+            } else {
+                (re[up], im[up])
+            };
+            let f = &follow[i];
+            let mut r = [f[0] * pr[0] + f[1] * pi[0], f[0] * pr[1] + f[1] * pi[1]];
+            let mut m = [f[2] * pr[0] + f[3] * pi[0], f[2] * pr[1] + f[3] * pi[1]];
+            if let Some((_, term)) = on_path.next_if(|(node, _)| **node as usize == i) {
+                // The term applied to (1, 0) and (0, 1): its columns.
+                r[0] += term[0];
+                m[0] += term[2];
+                r[1] += term[1];
+                m[1] += term[3];
+            }
+            re[i] = r;
+            im[i] = m;
+            previous = (r, m);
+        }
+    }
+}
+
+/// The voltage change at every node per unit current injected at one node: per node, the real
+/// parts `re[i]` and imaginary parts `im[i]` of the change per unit real current (index 0)
+/// and per unit imaginary current (index 1).
+#[derive(Debug, Clone, Default)]
+pub(crate) struct UnitChanges {
+    re: Vec<[f64; 2]>,
+    im: Vec<[f64; 2]>,
+}
+
+impl UnitChanges {
+    fn resize(&mut self, n: usize) {
+        self.re.resize(n, [0.0; 2]);
+        self.im.resize(n, [0.0; 2]);
+    }
+
+    /// Number of nodes.
+    pub(crate) fn n_nodes(&self) -> usize {
+        self.re.len()
+    }
+
     /// Sets `work` to `base` plus the linear change from an injected `current` (re, im; pu);
     /// with `blend` = (anchor, s), to `base + s·(anchor − base)` plus that change instead.
     pub(crate) fn set_changed(
         &self,
-        linear: &LinearResponse,
-        network: &Network,
         base: &FlowState,
         blend: Option<(&FlowState, f64)>,
-        current: (f64, f64),
+        (cr, ci): (f64, f64),
         work: &mut FlowState,
     ) {
-        let follow = &linear.follow;
-        let mut on_path = self.path.iter().zip(&self.terms).peekable();
-        let change = |i: usize, from_parent| {
-            let (dr, di) = apply(&follow[i], from_parent);
-            match on_path.next_if(|(node, _)| **node as usize == i) {
-                Some((_, term)) => {
-                    let (tr, ti) = apply(term, current);
-                    (dr + tr, di + ti)
-                }
-                None => (dr, di),
-            }
-        };
-        let (br, bi) = (base.v_re(), base.v_im());
+        let n = self.re.len();
+        let (re, im) = (&self.re[..n], &self.im[..n]);
+        let (br, bi) = (&base.v_re()[..n], &base.v_im()[..n]);
         match blend {
-            None => work.set_changes(network, |i| (br[i], bi[i]), change),
-            Some((anchor, s)) => {
-                let (ar, ai) = (anchor.v_re(), anchor.v_im());
-                work.set_changes(
-                    network,
-                    |i| (br[i] + s * (ar[i] - br[i]), bi[i] + s * (ai[i] - bi[i])),
-                    change,
+            None => work.set_voltages(|i| {
+                (
+                    br[i] + cr * re[i][0] + ci * re[i][1],
+                    bi[i] + cr * im[i][0] + ci * im[i][1],
                 )
+            }),
+            Some((anchor, s)) => {
+                let (ar, ai) = (&anchor.v_re()[..n], &anchor.v_im()[..n]);
+                work.set_voltages(|i| {
+                    (
+                        br[i] + s * (ar[i] - br[i]) + cr * re[i][0] + ci * re[i][1],
+                        bi[i] + s * (ai[i] - bi[i]) + cr * im[i][0] + ci * im[i][1],
+                    )
+                })
             }
         }
     }
@@ -289,7 +348,9 @@ mod tests {
                 let injection = [Injection { bus, p_pu, q_pu }];
                 solve(network, &case.demand, &injection, &mut solved, &tight).unwrap();
                 let mut started = case.base.clone();
-                response.set_changed(&linear, network, &case.base, None, current, &mut started);
+                let mut units = UnitChanges::default();
+                response.unit_changes(&linear, network, &mut units);
+                units.set_changed(&case.base, None, current, &mut started);
                 let predicted: Vec<(f64, f64)> = (0..feeder.n_nodes())
                     .map(|i| {
                         (

@@ -14,7 +14,7 @@ use crate::criteria::{
     first_crossing, predict_crossing_pu,
 };
 use crate::forecast::Forecast;
-use crate::linear::PathResponse;
+use crate::linear::{PathResponse, UnitChanges};
 use crate::prepare::{FeederStudy, ScenarioCase};
 
 /// How the capacity is searched. Both return the same numbers.
@@ -141,6 +141,9 @@ struct Evaluator<'s, 'f> {
     /// The elements extrapolating predictions look at: the nodes of the plant's path, per
     /// node of it the off-path node nearest to each voltage limit, the branches of the path.
     watched: Watched,
+    /// The linear response's change per unit current at every node, built by the first start
+    /// from it.
+    units: Option<UnitChanges>,
     /// The linear forecast over `watched`, built by the first fast search.
     forecast: Option<Forecast>,
     /// What the criteria saw in the last solve.
@@ -162,6 +165,8 @@ thread_local! {
     static SPARE_STATES: RefCell<Vec<FlowState>> = const { RefCell::new(Vec::new()) };
     /// Snapshot buffers of finished node answers, reused likewise.
     static SPARE_SNAPSHOTS: RefCell<Vec<Snapshot>> = const { RefCell::new(Vec::new()) };
+    /// Unit-change buffers of finished node answers, reused likewise.
+    static SPARE_UNITS: RefCell<Vec<UnitChanges>> = const { RefCell::new(Vec::new()) };
 }
 
 /// Spare solution buffers kept per thread.
@@ -232,6 +237,9 @@ impl Drop for Evaluator<'_, '_> {
             SPARE_SNAPSHOTS_KEPT,
             |snapshot| snapshot.v_pu.len() == n,
         );
+        keep_spares(&SPARE_UNITS, self.units.take(), 1, |units| {
+            units.n_nodes() == n
+        });
     }
 }
 
@@ -288,6 +296,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             solved_p_pu: [f64::NAN; SOLVED_KEPT],
             newest: 0,
             response: case.linear.path_response(path),
+            units: None,
             forecast: None,
             watched,
             seen: spare_snapshot(&case.snapshot),
@@ -569,11 +578,12 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                 _ => {}
             }
         }
-        // Far beyond the two nearest (farther than they are apart), the secant's bend is
-        // off: the linear response corrected at the nearest solved injection does better.
+        // Far beyond the two nearest (several times farther than they are apart), the secant's
+        // bend is off: the linear response corrected at the nearest solved injection does
+        // better (it costs more to set up than the secant, so only there).
         if let [Some((a, _)), other] = nearest
             && a > 0.0
-            && other.is_none_or(|(b, _)| (p_pu - a).abs() > (a - b).abs())
+            && other.is_none_or(|(b, _)| (p_pu - a).abs() > FAR_BEYOND * (a - b).abs())
             && let Some(slot) = (0..self.solved.len()).find(|&slot| self.solved_p_pu[slot] == a)
         {
             self.start_linear(p_pu, Some((a, slot)));
@@ -626,17 +636,16 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             }
             current
         };
-        let network = &self.study.network;
+        // The change per unit current at every node, once per node answer.
+        let units = self.units.get_or_insert_with(|| {
+            let mut units = take_spare(&SPARE_UNITS, |_| true).unwrap_or_default();
+            self.response
+                .unit_changes(&self.case.linear, &self.study.network, &mut units);
+            units
+        });
         let Some((p_a, slot)) = anchor else {
             let current = fixed_point(&plant, (0.0, 0.0), plant.current(br[k], bi[k]));
-            self.response.set_changed(
-                &self.case.linear,
-                network,
-                base,
-                None,
-                current,
-                &mut self.work,
-            );
+            units.set_changed(base, None, current, &mut self.work);
             return;
         };
         let solved = &self.solved[slot];
@@ -649,15 +658,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         let ratio = p_pu / p_a;
         let i_p = fixed_point(&plant, (s * er, s * ei), (ratio * i_a.0, ratio * i_a.1));
         let current = (i_p.0 - s * i_a.0, i_p.1 - s * i_a.1);
-        let solved = &self.solved[slot];
-        self.response.set_changed(
-            &self.case.linear,
-            network,
-            base,
-            Some((solved, s)),
-            current,
-            &mut self.work,
-        );
+        units.set_changed(base, Some((solved, s)), current, &mut self.work);
     }
 
     /// The outcome at `p_kw`, solved once.
@@ -1013,6 +1014,11 @@ const NOSE_FRACTION: f64 = 0.5;
 
 /// The largest factor a linear start's error at a solved injection is scaled by ((P / P_a)²).
 const ANCHOR_SCALE_MAX: f64 = 9.0;
+
+/// A solve starts from the linear response corrected at the nearest solved injection, not the
+/// secant through the two nearest, when it is more than this many times farther from the
+/// nearest than they are apart.
+const FAR_BEYOND: f64 = 4.0;
 
 /// Converged injections kept for warm starts.
 const SOLVED_KEPT: usize = 4;

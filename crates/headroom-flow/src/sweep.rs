@@ -133,39 +133,6 @@ impl FlowState {
         }
     }
 
-    /// Sets every node voltage to a base (`base(i)`: real, imaginary, pu) plus a change that
-    /// propagates down the feeder: node by node in index order (parents first),
-    /// `change(i, parent's)` gives node i's change from its parent's ((0, 0) for the head's
-    /// parent), for a warm start predicted by the caller.
-    pub fn set_changes(
-        &mut self,
-        network: &Network,
-        mut base: impl FnMut(usize) -> (f64, f64),
-        mut change: impl FnMut(usize, (f64, f64)) -> (f64, f64),
-    ) {
-        let n = self.v_re.len();
-        let parent = &network.parent[..n];
-        let (v_re, v_im) = (&mut self.v_re[..n], &mut self.v_im[..n]);
-        let mut previous = change(0, (0.0, 0.0));
-        let (b_re, b_im) = base(0);
-        v_re[0] = b_re + previous.0;
-        v_im[0] = b_im + previous.1;
-        for i in 1..n {
-            let up = parent[i] as usize;
-            // The parent is usually the node just before: its change is still at hand.
-            let from = if up + 1 == i {
-                previous
-            } else {
-                let (u_re, u_im) = base(up);
-                (v_re[up] - u_re, v_im[up] - u_im)
-            };
-            previous = change(i, from);
-            let (b_re, b_im) = base(i);
-            v_re[i] = b_re + previous.0;
-            v_im[i] = b_im + previous.1;
-        }
-    }
-
     /// Number of nodes.
     pub fn n_nodes(&self) -> usize {
         self.v_re.len()
