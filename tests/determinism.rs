@@ -182,3 +182,37 @@ fn next_to_voltage_collapse_the_summary_counts_the_answers_searched_step_by_step
     // The stepped search hands nothing over, and says nothing about it.
     assert_eq!(counted(&reference), None, "{reference}");
 }
+
+/// Two nodes' voltage changes cross their limit 1e-3 of a resolution apart, within 1e-9 of the
+/// edge of what counts as a tie: the fast and the stepped search end on solutions that differ
+/// in the last digits (they start from different places), and they named different binding
+/// nodes before the element was decided, next to such an edge, on solutions that depend on
+/// the injection alone. Feeder mossgarrow-01 of `headroom synth --nodes 1000 --seed 3
+/// --feeders 200` (tests/data/near-tie), node n672, scenario min-load.
+#[test]
+fn fast_and_stepped_name_the_same_element_at_the_edge_of_a_tie() {
+    use headroom_capacity::{CapacityOptions, FeederStudy, SearchMethod};
+    use headroom_model::{BusIdx, Study, load_feeders};
+
+    let feeders = load_feeders(&crate::command::repo_path("tests/data/near-tie"))
+        .expect("the near-tie feeder is valid");
+    let feeder = &feeders[0];
+    let bus = (0..feeder.n_nodes() as u32)
+        .map(BusIdx::new)
+        .find(|&bus| feeder.node(bus).id == "n672")
+        .expect("node n672");
+    let prepared = FeederStudy::prepare(feeder, &Study::default());
+    let [fast, stepped] = [SearchMethod::Fast, SearchMethod::Stepped].map(|method| {
+        let options = CapacityOptions {
+            method,
+            criteria_detail: true,
+        };
+        prepared.node_capacity(0, bus, &options)
+    });
+    assert_eq!(prepared.study.scenarios[0].name, "min-load");
+    assert_eq!(fast.hosting_kw, 2994.0);
+    assert_eq!(
+        (fast.hosting_kw, fast.limit, fast.element),
+        (stepped.hosting_kw, stepped.limit, stepped.element)
+    );
+}

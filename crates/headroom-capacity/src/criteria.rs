@@ -138,6 +138,10 @@ pub(crate) struct Snapshot {
     pub i_pu: Vec<f64>,
     /// Active power from the head into the feeder, pu.
     pub head_p_pu: f64,
+    /// How far the voltages may be from the converged solution's, pu (0: not bounded here).
+    pub error_v_pu: f64,
+    /// How far the currents and the head power may be from the converged solution's, pu.
+    pub error_flow_pu: f64,
 }
 
 impl Snapshot {
@@ -160,7 +164,16 @@ impl Snapshot {
             v_pu: magnitude(v_re, v_im),
             i_pu,
             head_p_pu: head_p_pu(state),
+            error_v_pu: 0.0,
+            error_flow_pu: 0.0,
         }
+    }
+
+    /// Records how far the judged state may be from the converged solution: per unit of the
+    /// last sweep's change, (voltages, flows), times that change.
+    pub(crate) fn set_error_bounds(&mut self, (per_v, per_flow): (f64, f64), change_pu: f64) {
+        self.error_v_pu = per_v * change_pu;
+        self.error_flow_pu = per_flow * change_pu;
     }
 }
 
@@ -537,16 +550,22 @@ const TIE_FRACTION: f64 = 1e-3;
 
 /// Among the (criterion, element) pairs of `subset` violated at `fail` but not at `pass`, the one
 /// whose quantity crosses its threshold first on the straight line from `pass` to `fail`;
-/// near-ties go to the order of [`Limit::ALL`], then to the lower element index.
+/// near-ties go to the order of [`Limit::ALL`], then to the lower element index. With it,
+/// whether that choice could come out otherwise on the converged solutions: some comparison
+/// lies closer to the edge of a tie than the snapshots' error bounds allow for.
 pub(crate) fn first_crossing(
     thresholds: &Thresholds,
     subset: u8,
     base: &Snapshot,
     pass: &Snapshot,
     fail: &Snapshot,
-) -> Option<(Limit, Element)> {
-    let mut best: Option<(f64, Limit, Element)> = None;
+) -> Option<(Limit, Element, bool)> {
+    // (crossing fraction, its uncertainty, criterion, element)
+    let mut best: Option<(f64, f64, Limit, Element)> = None;
+    let mut doubtful = false;
     let pair = [pass, fail];
+    let error_v = pass.error_v_pu.max(fail.error_v_pu);
+    let error_flow = pass.error_flow_pu.max(fail.error_flow_pu);
     thresholds.for_each_pair(
         subset,
         base,
@@ -561,9 +580,20 @@ pub(crate) fn first_crossing(
             } else {
                 ((threshold - q_pass) / (q_fail - q_pass)).clamp(0.0, 1.0)
             };
+            let error = match limit {
+                Limit::Thermal | Limit::ReverseFlow => error_flow,
+                _ => error_v,
+            };
+            let uncertainty = error / (q_fail - q_pass);
             let better = match best {
                 None => true,
-                Some((t_best, limit_best, element_best)) => {
+                Some((t_best, u_best, limit_best, element_best)) => {
+                    // How much farther from the edge of a tie than the fractions may be off
+                    // (NaN: no telling).
+                    let room = ((t - t_best).abs() - TIE_FRACTION).abs() - (uncertainty + u_best);
+                    if room.is_nan() || room <= 0.0 {
+                        doubtful = true;
+                    }
                     if t < t_best - TIE_FRACTION {
                         true
                     } else if t <= t_best + TIE_FRACTION {
@@ -574,11 +604,11 @@ pub(crate) fn first_crossing(
                 }
             };
             if better {
-                best = Some((t, limit, element));
+                best = Some((t, uncertainty, limit, element));
             }
         },
     );
-    best.map(|(_, limit, element)| (limit, element))
+    best.map(|(_, _, limit, element)| (limit, element, doubtful))
 }
 
 /// The smallest injection (pu) at which some element of `subset` is predicted to cross its

@@ -466,8 +466,11 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                     result = self.solve_patiently(&injection, &stage_settings);
                 }
                 match result {
-                    Ok(_) => {
-                        outcome = Outcome::Converged(thresholds.judge(&self.work, &mut self.seen).0)
+                    Ok(converged) => {
+                        let (mask, margins) = thresholds.judge(&self.work, &mut self.seen);
+                        outcome = Outcome::Converged(mask);
+                        self.seen
+                            .set_error_bounds(bounds(margins), converged.mismatch_pu);
                     }
                     // The solution at hand and its verdict stand (a slow solve that stops
                     // converging keeps what it reached); a failed solve stays failed.
@@ -494,6 +497,8 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                     self.sweep_iterations += converged.iterations;
                     let (mask, margins) = thresholds.judge(&self.work, &mut self.seen);
                     outcome = Outcome::Converged(mask);
+                    self.seen
+                        .set_error_bounds(bounds(margins), converged.mismatch_pu);
                     // A slow sweep means the injection is next to the nose of the P–V curve,
                     // where the sweep shrinks its error by a factor ρ close to 1 and the
                     // margins above, which assume ρ < 0.99, cannot be trusted: the tight
@@ -659,6 +664,25 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         let i_p = fixed_point(&plant, (s * er, s * ei), (ratio * i_a.0, ratio * i_a.1));
         let current = (i_p.0 - s * i_a.0, i_p.1 - s * i_a.1);
         units.set_changed(base, Some((solved, s)), current, &mut self.work);
+    }
+
+    /// What the criteria see at `p_kw` solved from the base case's start (which depends on the
+    /// injection alone) to the study's tolerance: the same numbers, to the last bit, in every
+    /// search. `None` when that solve finds no solution.
+    fn canonical_point(&mut self, p_kw: f64) -> Option<Snapshot> {
+        let p_pu = self.study.network.kw_to_pu(p_kw);
+        let injection = [Injection {
+            bus: self.bus,
+            p_pu,
+            q_pu: p_pu * self.q_per_p,
+        }];
+        let settings = self.study.solve_settings;
+        self.start_from_base(p_pu);
+        self.load_flows += 1;
+        self.solve_patiently(&injection, &settings).ok()?;
+        let mut snapshot = spare_snapshot(&self.case.snapshot);
+        self.case.thresholds.judge(&self.work, &mut snapshot);
+        Some(snapshot)
     }
 
     /// The outcome at `p_kw`, solved once.
@@ -1258,7 +1282,7 @@ impl FeederStudy<'_> {
                 Some((
                     answer.lo,
                     Some(answer.lo_snap),
-                    answer.hi.map(|(_, snap)| snap),
+                    answer.hi.map(|(h, snap)| (eval.kw(h), snap)),
                 ))
             }
             SearchMethod::Stepped => None,
@@ -1299,7 +1323,7 @@ impl FeederStudy<'_> {
                     (
                         steps,
                         Some(pass_snap),
-                        Some(eval.point(fail_kw, Purpose::Crossing).1),
+                        Some((fail_kw, eval.point(fail_kw, Purpose::Crossing).1)),
                     )
                 }
             }
@@ -1307,15 +1331,30 @@ impl FeederStudy<'_> {
 
         let (limit, element) = match (fail, pass_snap) {
             (None, _) | (_, None) => (Limit::SearchMax, Element::None),
-            (Some(None), _) => (Limit::NotConverged, Element::None),
-            (Some(Some(fail_snap)), Some(pass_snap)) => first_crossing(
-                &case.thresholds,
-                ALL,
-                &case.snapshot,
-                &pass_snap,
-                &fail_snap,
-            )
-            .unwrap_or((Limit::NotConverged, Element::None)),
+            (Some((_, None)), _) => (Limit::NotConverged, Element::None),
+            (Some((fail_kw, Some(fail_snap))), Some(pass_snap)) => {
+                let crossing = |pass: &Snapshot, fail: &Snapshot| {
+                    first_crossing(&case.thresholds, ALL, &case.snapshot, pass, fail)
+                };
+                match crossing(&pass_snap, &fail_snap) {
+                    // Next to the edge of a tie, the last bits of the two solutions decide, and
+                    // they depend on where each solve started: both are solved again from the
+                    // start that depends on the injection alone, so that every search decides
+                    // on the same numbers.
+                    Some((_, _, true)) => {
+                        let pass_kw = eval.kw(steps);
+                        match (eval.canonical_point(pass_kw), eval.canonical_point(fail_kw)) {
+                            (Some(pass), Some(fail)) => crossing(&pass, &fail),
+                            _ => crossing(&pass_snap, &fail_snap),
+                        }
+                    }
+                    decided => decided,
+                }
+                .map_or(
+                    (Limit::NotConverged, Element::None),
+                    |(limit, element, _)| (limit, element),
+                )
+            }
         };
         NodeCapacity {
             bus,
