@@ -12,7 +12,7 @@
 use headroom_flow::FlowState;
 
 use crate::criteria::{CHANGE, OVER, REVERSE, Snapshot, THERMAL, Thresholds, UNDER, Watched};
-use crate::linear::{IDENTITY, LinearResponse, M2, PathResponse, apply, mul};
+use crate::linear::{IDENTITY, LinearResponse, M2, MAX_ERROR_SCALE, PathResponse, apply, mul};
 
 /// Fixed-point steps for the plant's current: each shrinks the error by about the plant's
 /// share of the voltage (a few percent), so this is exact to rounding well short of the nose.
@@ -23,10 +23,6 @@ const ROUNDS: usize = 8;
 
 /// A prediction stops once it moves by less than this, pu (a thousandth of a kW).
 const SETTLED_PU: f64 = 1e-6;
-
-/// The anchor's error is scaled by at most this factor ((P / P_a)² up to P = 3·P_a): far
-/// beyond a close anchor, the rounding of its solution would be magnified instead.
-const MAX_ERROR_SCALE: f64 = 9.0;
 
 /// The watched elements of one plant and their linear response.
 pub(crate) struct Forecast {
@@ -163,7 +159,6 @@ impl Forecast {
     /// criteria saw there; the base case when `None`), starting the secant rounds from the
     /// guess `guess_pu`. Infinite when nothing is heading for its threshold, NaN when the
     /// model has no solution there.
-    #[allow(clippy::too_many_arguments)]
     pub(crate) fn crossing_pu(
         &self,
         thresholds: &Thresholds,

@@ -1,5 +1,6 @@
 //! The base case's linear response to a current injected at one node, the loads' response
-//! included: the start of a solve far from any solved injection.
+//! included: the start of a solve far from any solved injection, and the fast search's forecast
+//! of where a criterion binds ([`crate::forecast`]).
 //!
 //! A constant-power load draws I = conj(S / V), so a small voltage change ΔV changes its
 //! current by −conj(S) / conj(V)² · conj(ΔV): linear in the real and imaginary parts of ΔV but
@@ -22,6 +23,11 @@ use headroom_flow::{Demand, FlowState, Network};
 
 /// A real 2×2 matrix, row-major, acting on (re, im).
 pub(crate) type M2 = [f64; 4];
+
+/// The linear response's error at a solved injection P_a is scaled by (P / P_a)² to correct it
+/// at P, but by at most this factor (up to P = 3·P_a): far beyond a close anchor, the rounding
+/// of its solution would be magnified instead.
+pub(crate) const MAX_ERROR_SCALE: f64 = 9.0;
 
 pub(crate) const IDENTITY: M2 = [1.0, 0.0, 0.0, 1.0];
 

@@ -14,7 +14,7 @@ use crate::criteria::{
     first_crossing, predict_crossing_pu,
 };
 use crate::forecast::Forecast;
-use crate::linear::{PathResponse, UnitChanges};
+use crate::linear::{MAX_ERROR_SCALE, PathResponse, UnitChanges};
 use crate::prepare::{FeederStudy, ScenarioCase};
 
 /// How the capacity is searched. Both return the same numbers.
@@ -659,7 +659,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         let i_a = current_of(p_a, plant.q_per_p, solved.v_re()[k], solved.v_im()[k]);
         let (dr, di) = self.response.at_node(i_a);
         let (er, ei) = (solved.v_re()[k] - br[k] - dr, solved.v_im()[k] - bi[k] - di);
-        let s = ((p_pu / p_a) * (p_pu / p_a)).min(ANCHOR_SCALE_MAX);
+        let s = ((p_pu / p_a) * (p_pu / p_a)).min(MAX_ERROR_SCALE);
         let ratio = p_pu / p_a;
         let i_p = fixed_point(&plant, (s * er, s * ei), (ratio * i_a.0, ratio * i_a.1));
         let current = (i_p.0 - s * i_a.0, i_p.1 - s * i_a.1);
@@ -1035,9 +1035,6 @@ const PATIENT_SWEEPS: u32 = 10_000;
 /// feeders of the tests the voltage rise peaked at 0.9 to 1.0 of that model's nose, and the
 /// network's own nose lay within 15 % of it; ordinary limits bind far below (1.10 pu at 0.15).
 const NOSE_FRACTION: f64 = 0.5;
-
-/// The largest factor a linear start's error at a solved injection is scaled by ((P / P_a)²).
-const ANCHOR_SCALE_MAX: f64 = 9.0;
 
 /// A solve starts from the linear response corrected at the nearest solved injection, not the
 /// secant through the two nearest, when it is more than this many times farther from the
