@@ -142,6 +142,8 @@ pub(crate) struct Snapshot {
     pub error_v_pu: f64,
     /// How far the currents and the head power may be from the converged solution's, pu.
     pub error_flow_pu: f64,
+    /// Criteria that [`Thresholds::judge`] found violated nowhere (0 when not judged).
+    pub clean: u8,
 }
 
 impl Snapshot {
@@ -166,6 +168,7 @@ impl Snapshot {
             head_p_pu: head_p_pu(state),
             error_v_pu: 0.0,
             error_flow_pu: 0.0,
+            clean: 0,
         }
     }
 
@@ -282,12 +285,12 @@ impl Scan {
             let ov = if self.v_max > hi { self.v_max } else { hi };
             let uv = if self.v_min < lo { self.v_min } else { lo };
             let (a, b) = (v[l] - ov, uv - v[l]);
-            let d = v[l] - base[l];
-            let (c, c_neg) = (d - self.change, -d - self.change);
+            // The change beyond its limit, either way: |d| − limit is exactly the larger of
+            // d − limit and −d − limit, and its magnitude the nearer of the two to 0.
+            let cc = (v[l] - base[l]).abs() - self.change;
             let e = current[l] - rating[l];
             self.over[l] = if a > self.over[l] { a } else { self.over[l] };
             self.under[l] = if b > self.under[l] { b } else { self.under[l] };
-            let cc = if c > c_neg { c } else { c_neg };
             self.moved[l] = if cc > self.moved[l] {
                 cc
             } else {
@@ -298,10 +301,9 @@ impl Scan {
             } else {
                 self.thermal[l]
             };
-            let (aa, ba, ca, na, ea) = (a.abs(), b.abs(), c.abs(), c_neg.abs(), e.abs());
+            let (aa, ba, ca, ea) = (a.abs(), b.abs(), cc.abs(), e.abs());
             let ab = if aa < ba { aa } else { ba };
-            let cn = if ca < na { ca } else { na };
-            let near = if ab < cn { ab } else { cn };
+            let near = if ab < ca { ab } else { ca };
             self.margin_v[l] = if near < self.margin_v[l] {
                 near
             } else {
@@ -459,6 +461,7 @@ impl Thresholds {
             }
             margins.flow_pu = margins.flow_pu.min((head_p - self.head_p_min_pu).abs());
         }
+        seen.clean = ALL & !mask;
         (mask, margins)
     }
 
@@ -563,6 +566,9 @@ pub(crate) fn first_crossing(
     // (crossing fraction, its uncertainty, criterion, element)
     let mut best: Option<(f64, f64, Limit, Element)> = None;
     let mut doubtful = false;
+    // A criterion violated nowhere at `fail` has nothing to offer (its mask bit and the test
+    // below compare the same numbers).
+    let subset = subset & !fail.clean;
     let pair = [pass, fail];
     let error_v = pass.error_v_pu.max(fail.error_v_pu);
     let error_flow = pass.error_flow_pu.max(fail.error_flow_pu);
