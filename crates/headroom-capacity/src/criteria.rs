@@ -228,6 +228,28 @@ impl Margins {
     }
 }
 
+/// How far a node's voltage `v` (its base voltage `base`) is beyond its overvoltage and
+/// undervoltage thresholds and its change beyond the change limit, pu (> 0: violated), under
+/// the limits `[v_max, v_min, change]`: the arithmetic of [`Thresholds::judge`] for one node.
+#[inline(always)]
+fn voltage_excess(v: f64, base: f64, [v_max, v_min, change]: [f64; 3]) -> [f64; 3] {
+    let hi = base + WORSE_EPS_PU;
+    let lo = base - WORSE_EPS_PU;
+    let ov = if v_max > hi { v_max } else { hi };
+    let uv = if v_min < lo { v_min } else { lo };
+    // The change beyond its limit, either way: |d| − limit is exactly the larger of d − limit
+    // and −d − limit, and its magnitude the nearer of the two to 0.
+    [v - ov, uv - v, (v - base).abs() - change]
+}
+
+/// The distance to the nearest of a node's voltage thresholds, from [`voltage_excess`].
+#[inline(always)]
+fn nearest_voltage_threshold([a, b, cc]: [f64; 3]) -> f64 {
+    let (aa, ba, ca) = (a.abs(), b.abs(), cc.abs());
+    let ab = if aa < ba { aa } else { ba };
+    if ab < ca { ab } else { ca }
+}
+
 /// Running results of [`Thresholds::judge`], one accumulator per lane: a max or min reduction
 /// is not reordered by the compiler, so separate lanes are what lets it use vector registers.
 struct Scan {
@@ -280,14 +302,7 @@ impl Scan {
         for l in 0..LANES {
             v[l] = (vr[l] * vr[l] + vi[l] * vi[l]).sqrt();
             current[l] = (jr[l] * jr[l] + ji[l] * ji[l]).sqrt();
-            let hi = base[l] + WORSE_EPS_PU;
-            let lo = base[l] - WORSE_EPS_PU;
-            let ov = if self.v_max > hi { self.v_max } else { hi };
-            let uv = if self.v_min < lo { self.v_min } else { lo };
-            let (a, b) = (v[l] - ov, uv - v[l]);
-            // The change beyond its limit, either way: |d| − limit is exactly the larger of
-            // d − limit and −d − limit, and its magnitude the nearer of the two to 0.
-            let cc = (v[l] - base[l]).abs() - self.change;
+            let [a, b, cc] = voltage_excess(v[l], base[l], [self.v_max, self.v_min, self.change]);
             let e = current[l] - rating[l];
             self.over[l] = if a > self.over[l] { a } else { self.over[l] };
             self.under[l] = if b > self.under[l] { b } else { self.under[l] };
@@ -301,9 +316,8 @@ impl Scan {
             } else {
                 self.thermal[l]
             };
-            let (aa, ba, ca, ea) = (a.abs(), b.abs(), cc.abs(), e.abs());
-            let ab = if aa < ba { aa } else { ba };
-            let near = if ab < ca { ab } else { ca };
+            let near = nearest_voltage_threshold([a, b, cc]);
+            let ea = e.abs();
             self.margin_v[l] = if near < self.margin_v[l] {
                 near
             } else {
@@ -376,6 +390,16 @@ impl Thresholds {
     pub(crate) fn set_thermal_limit_pu(&mut self, i: usize, limit_pu: f64, base_i_pu: f64) {
         debug_assert!(i > 0, "the head has no feeding branch");
         self.th[i] = limit_pu.max(base_i_pu + WORSE_EPS_PU);
+    }
+
+    /// How far node `i`'s voltage in `state` is from the nearest of its thresholds, pu: the
+    /// very number [`Thresholds::judge`] takes for that node, so that the judge's
+    /// [`Margins::voltage_pu`] is at most this.
+    pub fn node_voltage_margin_pu(&self, state: &FlowState, i: usize) -> f64 {
+        let (vr, vi) = (state.v_re()[i], state.v_im()[i]);
+        let v = (vr * vr + vi * vi).sqrt();
+        let limits = [self.v_max_pu, self.v_min_pu, self.change_pu];
+        nearest_voltage_threshold(voltage_excess(v, self.v0[i], limits))
     }
 
     /// Which criteria (bits) the solved state violates, and how far the quantities are from

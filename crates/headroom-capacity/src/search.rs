@@ -407,8 +407,9 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         ];
         let tight = stages.len() - 1;
         let mut outcome = Outcome::Failed;
-        // The last sweep's largest change and the margins of the solution reached so far.
-        let mut reached: Option<(f64, Margins)> = None;
+        // The last sweep's largest change and the margins of the solution reached so far
+        // (`None`: not judged yet).
+        let mut reached: Option<(f64, Option<Margins>)> = None;
         // How the tight stage starts, when a slow or failed solve sends it there early.
         let mut tight_from = TightFrom::BaseKeepingThis;
         let mut stage = 0;
@@ -420,7 +421,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                 // A verdict alone, not settled at the loose tolerance: solve on just until its
                 // margins are twice what the error bounds ask of the last change, when that
                 // stops short of the study's tolerance.
-                (None, Some((mismatch_pu, margins))) if purpose == Purpose::Verdict => {
+                (None, Some((mismatch_pu, Some(margins)))) if purpose == Purpose::Verdict => {
                     let (per_voltage, per_flow) = bounds(margins);
                     let aim_pu =
                         0.5 * (margins.voltage_pu / per_voltage).min(margins.flow_pu / per_flow);
@@ -487,6 +488,13 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             {
                 // A solution whose last sweep already moved less than this stage's tolerance
                 // is where a solve to that tolerance would have stopped: judge it as it is.
+                let margins = margins.unwrap_or_else(|| {
+                    let (mask, margins) = thresholds.judge(&self.work, &mut self.seen);
+                    outcome = Outcome::Converged(mask);
+                    self.seen.set_error_bounds(bounds(margins), mismatch_pu);
+                    margins
+                });
+                reached = Some((mismatch_pu, Some(margins)));
                 if settled(margins, mismatch_pu, settled_margin_pu) {
                     break;
                 }
@@ -495,6 +503,19 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             match solve(network, demand, &injection, &mut self.work, &stage_settings) {
                 Ok(converged) => {
                     self.sweep_iterations += converged.iterations;
+                    // The solve for a crossing goes on to the study's tolerance unless every
+                    // quantity is far from its threshold at the loose one: the plant's own
+                    // voltage, where a voltage limit mostly binds, can tell that it is not,
+                    // and the judge waits for the solution the next stage settles on.
+                    if this == 0
+                        && purpose == Purpose::Crossing
+                        && converged.iterations <= SLOW_SWEEPS
+                        && thresholds.node_voltage_margin_pu(&self.work, self.bus.index())
+                            <= settled_margin_pu
+                    {
+                        reached = Some((converged.mismatch_pu, None));
+                        continue;
+                    }
                     let (mask, margins) = thresholds.judge(&self.work, &mut self.seen);
                     outcome = Outcome::Converged(mask);
                     self.seen
@@ -511,7 +532,7 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                     if settled(margins, converged.mismatch_pu, settled_margin_pu) {
                         break;
                     }
-                    reached = Some((converged.mismatch_pu, margins));
+                    reached = Some((converged.mismatch_pu, Some(margins)));
                 }
                 // No solution from this start: the tight stage decides, going on from here
                 // while the sweep still converges, else from the base case's start.
@@ -1591,6 +1612,36 @@ mod tests {
                 solution,
                 "{p_kw} kW: {from_base:?}"
             );
+        }
+    }
+
+    /// A crossing's solve skips the judge at the loose tolerance when the plant's own voltage
+    /// is within the settling margin of a threshold: that is sound only if the judge's voltage
+    /// margin is never above a node's own, so the least node margin must be the judge's
+    /// margin, to the bit, in solved states near and far from the limits.
+    #[test]
+    fn the_judges_voltage_margin_is_the_least_of_the_nodes_own() {
+        let feeder = generate(&SynthSettings::new(300, 5))
+            .to_feeder("margins")
+            .unwrap();
+        let prepared = FeederStudy::prepare(&feeder, &Study::default());
+        let n = prepared.network.n_nodes();
+        for s in 0..prepared.cases.len() {
+            let thresholds = &prepared.cases[s].thresholds;
+            for (bus, p_kw) in [(n - 1, 0.0), (n - 1, 2500.0), (n / 2, 4000.0), (7, 6000.0)] {
+                let p_pu = prepared.network.kw_to_pu(p_kw);
+                let state = solved_at(&prepared, s, BusIdx::new(bus as u32), p_pu);
+                let mut seen = spare_snapshot(&prepared.cases[s].snapshot);
+                let (_, margins) = thresholds.judge(&state, &mut seen);
+                let least = (0..n)
+                    .map(|i| thresholds.node_voltage_margin_pu(&state, i))
+                    .fold(f64::INFINITY, f64::min);
+                assert_eq!(
+                    least.to_bits(),
+                    margins.voltage_pu.to_bits(),
+                    "scenario {s}, {p_kw} kW at node {bus}"
+                );
+            }
         }
     }
 
