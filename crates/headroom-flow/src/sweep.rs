@@ -182,8 +182,8 @@ impl FlowState {
 /// independent lanes so that the loop runs in vector registers.
 fn lowest_v2(v_re: &[f64], v_im: &[f64]) -> f64 {
     const LANES: usize = 4;
-    let n = v_re.len();
-    let (v_re, v_im) = (&v_re[1..n], &v_im[1..n]);
+    let (v_re, v_im) = (v_re.get(1..).unwrap_or(&[]), v_im.get(1..).unwrap_or(&[]));
+    let v_im = &v_im[..v_re.len()];
     let mut lanes = [f64::INFINITY; LANES];
     let chunks = v_re.chunks_exact(LANES).zip(v_im.chunks_exact(LANES));
     for (re, im) in chunks {
