@@ -1394,8 +1394,21 @@ impl FeederStudy<'_> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use headroom_model::Study;
+    use headroom_model::{Feeder, Study};
     use headroom_synth::{SynthSettings, generate};
+
+    /// A seeded synthetic feeder of `n_nodes` nodes.
+    fn synthetic(n_nodes: usize, seed: u64, name: &str) -> Feeder {
+        generate(&SynthSettings::new(n_nodes, seed))
+            .to_feeder(name)
+            .unwrap()
+    }
+
+    /// The nodes the start tests look at: a quarter and half way down the numbering, and the
+    /// last.
+    fn probed_nodes(n: usize) -> [usize; 3] {
+        [n / 4, n / 2, n - 1]
+    }
 
     /// Largest distance between the node voltages of two states, pu.
     fn farthest(a: &FlowState, b: &FlowState) -> f64 {
@@ -1436,13 +1449,11 @@ mod tests {
     /// impedances would, is off by more (6e-3 of the rise at the first node).
     #[test]
     fn the_start_from_the_base_case_is_close_to_the_solution_at_every_node() {
-        let feeder = generate(&SynthSettings::new(400, 3))
-            .to_feeder("start")
-            .unwrap();
+        let feeder = synthetic(400, 3, "start");
         let prepared = FeederStudy::prepare(&feeder, &Study::default());
         let case = &prepared.cases[0];
         let n = feeder.n_nodes();
-        for k in [n / 4, n / 2, n - 1] {
+        for k in probed_nodes(n) {
             let bus = BusIdx::new(k as u32);
             let mut eval = Evaluator::new(&prepared, 0, bus);
             let p_pu = prepared.network.kw_to_pu(1500.0);
@@ -1462,13 +1473,11 @@ mod tests {
     /// case's linear start or the secant through the solved injection and the base case.
     #[test]
     fn the_start_corrected_at_a_solved_injection_stays_close_far_beyond_it() {
-        let feeder = generate(&SynthSettings::new(1000, 1))
-            .to_feeder("anchored")
-            .unwrap();
+        let feeder = synthetic(1000, 1, "anchored");
         let prepared = FeederStudy::prepare(&feeder, &Study::default());
         let case = &prepared.cases[0];
         let n = feeder.n_nodes();
-        for k in [n / 4, n / 2, n - 1] {
+        for k in probed_nodes(n) {
             let bus = BusIdx::new(k as u32);
             let mut eval = Evaluator::new(&prepared, 0, bus);
             let p_a = prepared.network.kw_to_pu(1500.0);
@@ -1513,9 +1522,7 @@ mod tests {
     /// of the second.
     #[test]
     fn a_sweep_leaves_no_more_error_than_the_bounds_allow() {
-        let feeder = generate(&SynthSettings::new(600, 2))
-            .to_feeder("bounds")
-            .unwrap();
+        let feeder = synthetic(600, 2, "bounds");
         let prepared = FeederStudy::prepare(&feeder, &Study::default());
         let n = feeder.n_nodes();
         let one_sweep = SolveSettings {
@@ -1621,9 +1628,7 @@ mod tests {
     /// margin, to the bit, in solved states near and far from the limits.
     #[test]
     fn the_judges_voltage_margin_is_the_least_of_the_nodes_own() {
-        let feeder = generate(&SynthSettings::new(300, 5))
-            .to_feeder("margins")
-            .unwrap();
+        let feeder = synthetic(300, 5, "margins");
         let prepared = FeederStudy::prepare(&feeder, &Study::default());
         let n = prepared.network.n_nodes();
         for s in 0..prepared.cases.len() {
