@@ -614,7 +614,15 @@ pub(crate) fn first_crossing(
                 Limit::Thermal | Limit::ReverseFlow => error_flow,
                 _ => error_v,
             };
-            let uncertainty = error / (q_fail - q_pass);
+            // Moving q_pass and q_fail by up to `error` each moves the fraction by
+            // (−(1 − t)·Δq_pass − t·Δq_fail) / (q_fail − q_pass + Δq_fail − Δq_pass), so by at
+            // most this (unbounded when the two may not be told apart).
+            let spread = q_fail - q_pass - 2.0 * error;
+            let uncertainty = if spread > 0.0 {
+                error / spread
+            } else {
+                f64::INFINITY
+            };
             let better = match best {
                 None => true,
                 Some((t_best, u_best, limit_best, element_best)) => {
@@ -744,4 +752,110 @@ fn scan<const K: usize>(
         );
     }
     best
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use headroom_model::Study;
+    use headroom_synth::{SynthSettings, generate};
+    use proptest::prelude::RngExt;
+    use proptest::test_runner::{RngAlgorithm, TestRng};
+
+    /// Moves every voltage and current of `at` to somewhere within its error bounds: to one of
+    /// the bounds' corners (where a crossing fraction moves most) or inside them.
+    fn somewhere_within_bounds(at: &Snapshot, rng: &mut TestRng) -> Snapshot {
+        let mut moved = at.clone();
+        let corners = rng.random_bool(0.5);
+        let mut shift = |error: f64| {
+            if corners {
+                if rng.random_bool(0.5) { error } else { -error }
+            } else {
+                rng.random_range(-error..=error)
+            }
+        };
+        for v in &mut moved.v_pu {
+            *v += shift(at.error_v_pu);
+        }
+        for i in moved.i_pu.iter_mut().skip(1) {
+            *i += shift(at.error_flow_pu);
+        }
+        moved
+    }
+
+    /// The pass and the failure of an answer are solved to within their error bounds, so the
+    /// converged solutions may be anywhere within them. Unless `first_crossing` says its choice
+    /// is in doubt, every such pair must give the same binding criterion and element: that is
+    /// what lets two searches that start their solves differently name the same element. The
+    /// cases put two to four overvoltage and thermal crossings around the edge of a tie
+    /// (fractions [`TIE_FRACTION`] apart, give or take a few of their uncertainties).
+    #[test]
+    fn a_choice_not_in_doubt_holds_for_any_solutions_within_the_error_bounds() {
+        let feeder = generate(&SynthSettings::new(80, 3))
+            .to_feeder("ties")
+            .unwrap();
+        let prepared = crate::prepare::FeederStudy::prepare(&feeder, &Study::default());
+        let case = &prepared.cases[0];
+        let (thresholds, base) = (&case.thresholds, &case.snapshot);
+        let n = base.v_pu.len();
+        // What one resolution moves a voltage and a current by, pu (typical of a 1 kW step).
+        let (span_v, span_i) = (1e-5, 1e-4);
+        let mut rng = TestRng::deterministic_rng(RngAlgorithm::ChaCha);
+        let (mut in_doubt, mut not_in_doubt) = (0, 0);
+        for case_no in 0..3000 {
+            let mut pass = base.clone();
+            let mut fail = base.clone();
+            // Each fraction is known to within `uncertainty`.
+            let uncertainty = rng.random_range(2e-5..2e-4);
+            for at in [&mut pass, &mut fail] {
+                at.error_v_pu = uncertainty * span_v;
+                at.error_flow_pu = uncertainty * span_i;
+            }
+            let first = rng.random_range(0.05..0.95);
+            for crossing in 0..rng.random_range(2..=4) {
+                let t = if crossing == 0 {
+                    first
+                } else {
+                    let edge = TIE_FRACTION * f64::from(rng.random_range(-1..=1));
+                    first + edge + uncertainty * rng.random_range(-4.0..4.0)
+                };
+                if rng.random_bool(0.5) {
+                    let i = rng.random_range(0..n);
+                    pass.v_pu[i] = thresholds.ov[i] - t * span_v;
+                    fail.v_pu[i] = thresholds.ov[i] + (1.0 - t) * span_v;
+                } else {
+                    let i = rng.random_range(1..n);
+                    pass.i_pu[i] = thresholds.th[i] - t * span_i;
+                    fail.i_pu[i] = thresholds.th[i] + (1.0 - t) * span_i;
+                }
+            }
+            let subset = OVER | THERMAL;
+            let Some((limit, element, doubtful)) =
+                first_crossing(thresholds, subset, base, &pass, &fail)
+            else {
+                panic!("case {case_no}: no crossing found");
+            };
+            if doubtful {
+                in_doubt += 1;
+                continue;
+            }
+            not_in_doubt += 1;
+            for _ in 0..8 {
+                let pass = somewhere_within_bounds(&pass, &mut rng);
+                let fail = somewhere_within_bounds(&fail, &mut rng);
+                let other = first_crossing(thresholds, subset, base, &pass, &fail)
+                    .map(|(limit, element, _)| (limit, element));
+                assert_eq!(
+                    other,
+                    Some((limit, element)),
+                    "case {case_no}: {limit:?} at {element:?} was not in doubt"
+                );
+            }
+        }
+        // The cases reach both sides of the edge.
+        assert!(
+            in_doubt > 300 && not_in_doubt > 300,
+            "{in_doubt} in doubt, {not_in_doubt} not"
+        );
+    }
 }
