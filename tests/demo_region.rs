@@ -427,3 +427,30 @@ fn millbrook_keeps_its_ring_open_at_the_normally_open_point() {
     assert_eq!(ids.len(), 2 * feeder.n_branches());
     assert!(!ids.iter().any(|b| b == "MLB-NOP1"));
 }
+
+/// `headroom map … | head -1`: a reader that leaves before the summary is printed does not
+/// turn a finished run into a crash; the results are written and the exit code is 0.
+#[test]
+fn a_reader_that_leaves_early_does_not_fail_the_run() {
+    let out = scratch_folder("map-reader-gone");
+    let mut child = crate::command::headroom()
+        .arg("map")
+        .arg(repo_path("feeders/hallowick-millbrook-11"))
+        .arg("--out")
+        .arg(&out)
+        .arg("--quiet")
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .expect("headroom can be started");
+    // Close the reading end before the run prints anything.
+    drop(child.stdout.take());
+    let output = child.wait_with_output().expect("headroom runs to its end");
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    assert!(
+        output.status.success() && !stderr.contains("panicked"),
+        "exit {:?}, stderr:\n{stderr}",
+        output.status.code()
+    );
+    assert!(out.join("nodes.parquet").is_file());
+}

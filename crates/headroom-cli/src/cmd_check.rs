@@ -111,7 +111,6 @@ fn find_node<'f>(
     }
 }
 
-#[allow(clippy::print_stdout)]
 fn check_one(
     args: &CheckArgs,
     feeders: &[Feeder],
@@ -132,10 +131,10 @@ fn check_one(
         check_application(&prepared, &application, &options)
     });
     if args.json {
-        println!("{}", to_json(&report)?);
+        say!("{}", to_json(&report)?);
     } else {
-        print!("{}", render_report(&report));
-        println!("{CAUTION}");
+        say!("{}", render_report(&report).trim_end_matches('\n'));
+        say!("{CAUTION}");
     }
     Ok(())
 }
@@ -515,7 +514,7 @@ fn check_queue(
             order,
             outcome: &outcome,
         };
-        println!("{}", to_json(&document)?);
+        say!("{}", to_json(&document)?);
         return Ok(());
     }
     let n_feeders = {
@@ -528,12 +527,12 @@ fn check_queue(
         ids.dedup();
         ids.len()
     };
-    println!(
+    say!(
         "Queue {}: {} application(s) on {n_feeders} feeder(s), decided {order}",
         queue.display(),
         outcome.decisions.len()
     );
-    println!(
+    say!(
         "  accepted {:>5}  {:>12} kW",
         outcome.accepted,
         kw(outcome.accepted_kw)
@@ -550,7 +549,7 @@ fn check_queue(
         }
     }
     by_limit.sort();
-    println!(
+    say!(
         "  refused  {:>5}  {:>12} kW{}",
         outcome.refused,
         kw(outcome.refused_kw),
@@ -574,7 +573,7 @@ fn check_queue(
         .filter(|d| d.verdict == Verdict::Refuse)
         .collect();
     for d in refused.iter().take(SHOWN) {
-        println!(
+        say!(
             "  refused #{} {} ({} kW at node {}): capacity left {} kW in {}, {}",
             d.order,
             d.id,
@@ -586,15 +585,15 @@ fn check_queue(
         );
     }
     if refused.len() > SHOWN {
-        println!("  ... and {} more refused", refused.len() - SHOWN);
+        say!("  ... and {} more refused", refused.len() - SHOWN);
     }
-    println!(
+    say!(
         "{} load flows in {seconds:.2} s. Decisions in {} and {}",
         outcome.load_flows,
         csv_path.display(),
         out.join("decisions.parquet").display()
     );
-    println!("{CAUTION}");
+    say!("{CAUTION}");
     Ok(())
 }
 

@@ -17,7 +17,6 @@ struct Solved {
     state: FlowState,
 }
 
-#[allow(clippy::print_stdout)]
 pub fn run(args: &FlowArgs) -> Result<(), Failure> {
     let (feeders, study) = load_inputs(&args.feeder, args.study.as_deref())?;
     let groups = crs_groups(&feeders, None)?;
@@ -117,28 +116,28 @@ pub fn run(args: &FlowArgs) -> Result<(), Failure> {
                 )
             })
             .max_by(|a, b| a.1.total_cmp(&b.1));
-        println!("{} / {}:", feeder.id(), s.scenario);
-        println!(
+        say!("{} / {}:", feeder.id(), s.scenario);
+        say!(
             "  lowest voltage  {:.5} pu at node {}",
             solution.v_pu(lowest),
             feeder.nodes()[lowest].id
         );
-        println!(
+        say!(
             "  highest voltage {:.5} pu at node {}",
             solution.v_pu(highest),
             feeder.nodes()[highest].id
         );
-        println!("  total losses    {loss_kw:.2} kW, {loss_kvar:.2} kvar");
-        println!("  power at head   {p_kw:.2} kW, {q_kvar:.2} kvar (into the feeder)");
+        say!("  total losses    {loss_kw:.2} kW, {loss_kvar:.2} kvar");
+        say!("  power at head   {p_kw:.2} kW, {q_kvar:.2} kvar (into the feeder)");
         if let Some((branch, pct)) = loading {
-            println!(
+            say!(
                 "  highest loading {pct:.1} % of rating on branch {}",
                 branch.id
             );
         }
     }
-    println!("Results in {}", args.out.display());
-    println!("{CAUTION}");
+    say!("Results in {}", args.out.display());
+    say!("{CAUTION}");
     Ok(())
 }
 

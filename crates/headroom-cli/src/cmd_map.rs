@@ -48,7 +48,6 @@ struct FeederEntry {
     n_answers: u64,
 }
 
-#[allow(clippy::print_stdout)]
 pub fn run(args: &MapArgs) -> Result<(), Failure> {
     let started = Instant::now();
     let shard_choice = shard_from_environment(args.shard, args.shard_count, &|name| {
@@ -80,7 +79,7 @@ pub fn run(args: &MapArgs) -> Result<(), Failure> {
         .filter(|folder| shard.contains(&folder_id(folder)))
         .collect();
     if let Some((shard, source)) = &shard_choice {
-        println!(
+        say!(
             "Shard {shard} (from {source}): {} of the {n_region} feeder(s) under {}",
             own.len(),
             args.path.display()
@@ -116,14 +115,14 @@ pub fn run(args: &MapArgs) -> Result<(), Failure> {
         Start::Complete(records) => {
             print_summary(&records);
             let seconds = started.elapsed().as_secs_f64();
-            println!("{}", stats_line(&total_stats(&records), seconds));
-            println!(
+            say!("{}", stats_line(&total_stats(&records), seconds));
+            say!(
                 "{} already held this run, complete, with the same settings and inputs: nothing \
                  was mapped again (--fresh maps it again).",
                 args.out.display()
             );
-            println!("Results in {}", args.out.display());
-            println!("{CAUTION}");
+            say!("Results in {}", args.out.display());
+            say!("{CAUTION}");
             return Ok(());
         }
         Start::Run { done } => done,
@@ -215,18 +214,18 @@ pub fn run(args: &MapArgs) -> Result<(), Failure> {
     sync_dir(&layout.out);
     let seconds = started.elapsed().as_secs_f64();
     if entries.is_empty() {
-        println!("No feeder falls in shard {shard}: nothing to map.");
+        say!("No feeder falls in shard {shard}: nothing to map.");
     }
-    println!("{}", stats_line(&total, seconds));
+    say!("{}", stats_line(&total, seconds));
     if n_resumed > 0 {
-        println!(
+        say!(
             "{n_resumed} of these feeder(s) were finished by an earlier run that was stopped; \
              {} mapped now.",
             entries.len() - n_resumed
         );
     }
-    println!("Results in {}", args.out.display());
-    println!("{CAUTION}");
+    say!("Results in {}", args.out.display());
+    say!("{CAUTION}");
     Ok(())
 }
 
@@ -608,14 +607,16 @@ fn print_summary(records: &[FeederRecord]) {
 }
 
 /// One feeder's lines of the summary.
-#[allow(clippy::print_stdout)]
 fn print_feeder(record: &FeederRecord) {
-    println!(
+    say!(
         "{} ({}, {:.0} kV, {} nodes)",
-        record.feeder, record.name, record.nominal_kv, record.nodes
+        record.feeder,
+        record.name,
+        record.nominal_kv,
+        record.nodes
     );
     for sc in &record.scenarios {
-        println!(
+        say!(
             "  {:<12} capacity kW: lowest {:>8.0}  median {:>8.0}  highest {:>8.0}   binds: {}{}",
             sc.scenario,
             sc.hosting_kw_min.unwrap_or(0.0),

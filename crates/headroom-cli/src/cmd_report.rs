@@ -8,7 +8,6 @@ use crate::args::ReportArgs;
 use crate::output::{prepare_out_dir, write_text};
 use crate::{CAUTION, Failure};
 
-#[allow(clippy::print_stdout)]
 pub fn run(args: &ReportArgs) -> Result<(), Failure> {
     let date = report_date(
         args.date.as_deref(),
@@ -26,7 +25,7 @@ pub fn run(args: &ReportArgs) -> Result<(), Failure> {
     }
     write_text(&args.out, &html)?;
     let n_nodes: u64 = report.feeders.iter().map(|f| f.overall.n_nodes).sum();
-    println!(
+    say!(
         "Report of {} feeder(s), {} node(s), {} scenario(s), {} baseline violation(s) written to {}",
         report.feeders.len(),
         n_nodes,
@@ -34,7 +33,7 @@ pub fn run(args: &ReportArgs) -> Result<(), Failure> {
         report.baseline.len(),
         args.out.display()
     );
-    println!("{CAUTION}");
+    say!("{CAUTION}");
     Ok(())
 }
 

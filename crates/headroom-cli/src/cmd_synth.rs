@@ -5,7 +5,6 @@ use headroom_synth::{SynthSettings, generate, generate_region_with, write_region
 use crate::Failure;
 use crate::args::SynthArgs;
 
-#[allow(clippy::print_stdout)]
 pub fn run(args: &SynthArgs) -> Result<(), Failure> {
     if let Some(kv) = args.kv
         && !(kv.is_finite() && kv > 0.0)
@@ -27,7 +26,7 @@ pub fn run(args: &SynthArgs) -> Result<(), Failure> {
             feeder
                 .write_conductors(&args.out.join("conductors.csv"))
                 .map_err(write_error)?;
-            println!(
+            say!(
                 "wrote {} ({} nodes, {:.0} kV, peak load {:.0} kW, existing generation {:.0} kW)",
                 args.out.display(),
                 feeder.nodes.len(),
@@ -39,7 +38,7 @@ pub fn run(args: &SynthArgs) -> Result<(), Failure> {
         Some(n_feeders) => {
             let region = generate_region_with(n_feeders as usize, &settings);
             write_region(&args.out, &region).map_err(write_error)?;
-            println!(
+            say!(
                 "wrote {} feeders of {} nodes under {}",
                 n_feeders,
                 args.nodes,

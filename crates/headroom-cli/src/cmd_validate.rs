@@ -6,7 +6,6 @@ use crate::Failure;
 use crate::args::ValidateArgs;
 use crate::output::load_inputs;
 
-#[allow(clippy::print_stdout)]
 pub fn run(args: &ValidateArgs) -> Result<(), Failure> {
     let (feeders, study) = load_inputs(&args.path, args.study.as_deref())?;
     for feeder in &feeders {
@@ -15,7 +14,7 @@ pub fn run(args: &ValidateArgs) -> Result<(), Failure> {
             .nodes()
             .iter()
             .fold((0.0, 0.0), |(l, g), n| (l + n.load_kw, g + n.gen_kw));
-        println!(
+        say!(
             "{}: {} nodes, {} closed branches, {} open, {:.1} kV, head {} at {:.3} pu, \
              peak load {:.0} kW, existing generation {:.0} kW{}",
             feeder.id(),
@@ -34,7 +33,7 @@ pub fn run(args: &ValidateArgs) -> Result<(), Failure> {
         );
     }
     let limits = &study.limits;
-    println!(
+    say!(
         "study: voltage {:.3}–{:.3} pu, thermal {}% of rating, voltage change {}, reverse flow {}; \
          scenarios {}",
         limits.v_min_pu,
@@ -56,6 +55,6 @@ pub fn run(args: &ValidateArgs) -> Result<(), Failure> {
             .collect::<Vec<_>>()
             .join(", ")
     );
-    println!("{} feeder(s) valid.", feeders.len());
+    say!("{} feeder(s) valid.", feeders.len());
     Ok(())
 }

@@ -1,6 +1,13 @@
 //! The `headroom` command: parse the arguments, call the libraries, print, and map failures to
 //! exit codes (0 success, 1 invalid model or settings, 2 bad usage, 3 could not write output).
 
+/// `println!` for the command's report on standard output, through [`say`].
+macro_rules! say {
+    ($($arg:tt)*) => {
+        $crate::say(format_args!($($arg)*))
+    };
+}
+
 mod args;
 mod cmd_check;
 mod cmd_flow;
@@ -23,6 +30,31 @@ use args::{Cli, Command};
 /// Printed with every result: the numbers feed decisions about energised equipment.
 pub const CAUTION: &str = "Caution: planning estimates only. Confirm under local codes and by \
 licensed engineers before any connection decision.";
+
+/// Writes one line of the report on standard output. When the reader has gone away
+/// (`headroom map … | head -1`), the rest of the report is dropped quietly and the command
+/// carries on: its results are in its files, and the lines are a summary of them. Any other
+/// failure to write is said once on standard error.
+#[allow(clippy::print_stderr)]
+pub fn say(line: std::fmt::Arguments<'_>) {
+    use std::io::Write;
+    use std::sync::atomic::{AtomicBool, Ordering};
+    static CLOSED: AtomicBool = AtomicBool::new(false);
+    if CLOSED.load(Ordering::Relaxed) {
+        return;
+    }
+    let mut out = std::io::stdout().lock();
+    let written = out
+        .write_fmt(line)
+        .and_then(|()| out.write_all(b"\n"))
+        .and_then(|()| out.flush());
+    if let Err(error) = written {
+        CLOSED.store(true, Ordering::Relaxed);
+        if error.kind() != std::io::ErrorKind::BrokenPipe {
+            eprintln!("warning: could not write to standard output: {error}");
+        }
+    }
+}
 
 /// A failure with its exit code.
 #[derive(Debug)]
