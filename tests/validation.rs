@@ -497,3 +497,30 @@ fn bad_command_lines_exit_2_and_write_nothing() {
     }
     assert!(Path::new(&region.path("out")).symlink_metadata().is_err());
 }
+
+/// An `--out` that names an existing file: exit 3 (output not written), the file named and
+/// left as it was, for the commands that write a folder of results.
+#[test]
+fn an_output_folder_that_is_a_file_is_named_and_left_alone() {
+    let region = Region::good();
+    region.write("out", "not a folder");
+    let feeder = region.path("region/f1");
+    let out = region.path("out");
+    for command in ["map", "flow"] {
+        let args: Vec<&OsStr> = vec![
+            OsStr::new(command),
+            feeder.as_os_str(),
+            OsStr::new("--out"),
+            out.as_os_str(),
+        ];
+        let output = run(&args);
+        assert_eq!(output.status.code(), Some(3), "{}", describe(&output));
+        let stderr = String::from_utf8_lossy(&output.stderr);
+        assert!(
+            stderr.contains(&format!("{}: it is a file, not a folder", out.display())),
+            "{}",
+            describe(&output)
+        );
+        assert_eq!(std::fs::read_to_string(&out).unwrap(), "not a folder");
+    }
+}

@@ -35,8 +35,15 @@ pub fn load_inputs(path: &Path, study: Option<&Path>) -> Result<(Vec<Feeder>, St
     Ok((feeders, study))
 }
 
-/// Creates the output folder.
+/// Creates the output folder (and its parents); an existing file of that name is refused by
+/// name rather than with the system's "File exists".
 pub fn prepare_out_dir(dir: &Path) -> Result<(), Failure> {
+    if dir.exists() && !dir.is_dir() {
+        return Err(Failure::Output(format!(
+            "cannot write into {}: it is a file, not a folder",
+            dir.display()
+        )));
+    }
     std::fs::create_dir_all(dir).map_err(|e| {
         Failure::Output(format!(
             "cannot create output folder {}: {e}",

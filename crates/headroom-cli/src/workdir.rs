@@ -254,7 +254,7 @@ fn still_named(_file: &std::fs::File, path: &Path) -> bool {
 #[allow(clippy::print_stderr)]
 pub fn lock(layout: &Layout) -> Result<RunLock, Failure> {
     let out = &layout.out;
-    std::fs::create_dir_all(out).map_err(|e| io_failure("create folder", out, e))?;
+    crate::output::prepare_out_dir(out)?;
     let path = layout.lock_file();
     loop {
         let mut file = std::fs::OpenOptions::new()
@@ -447,7 +447,7 @@ pub fn start(
     fresh: bool,
 ) -> Result<Start, Failure> {
     let out = &layout.out;
-    std::fs::create_dir_all(out).map_err(|e| io_failure("create folder", out, e))?;
+    crate::output::prepare_out_dir(out)?;
     let own = layout.own_split();
     let mut names: Vec<String> = std::fs::read_dir(out)
         .map_err(|e| io_failure("list", out, e))?
