@@ -787,8 +787,9 @@ mod tests {
     /// converged solutions may be anywhere within them. Unless `first_crossing` says its choice
     /// is in doubt, every such pair must give the same binding criterion and element: that is
     /// what lets two searches that start their solves differently name the same element. The
-    /// cases put two to four overvoltage and thermal crossings around the edge of a tie
-    /// (fractions [`TIE_FRACTION`] apart, give or take a few of their uncertainties).
+    /// cases put two to four overvoltage and thermal crossings at fractions equal to, or
+    /// [`TIE_FRACTION`] above or below, the first one's, give or take a few of their
+    /// uncertainties: inside a tie and on both sides of its edge.
     #[test]
     fn a_choice_not_in_doubt_holds_for_any_solutions_within_the_error_bounds() {
         let feeder = generate(&SynthSettings::new(80, 3))
