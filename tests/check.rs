@@ -209,6 +209,18 @@ fn usage_errors_exit_2_and_invalid_input_exits_1() {
         "no node \"nowhere\" in feeder bw33",
     );
     usage(&[&b, "--node", "1", "--kw", "100"], "head of feeder bw33");
+    // An id that differs from a node's only in letter case or surrounding spaces is pointed at.
+    let millbrook = repo_path("feeders/hallowick-millbrook-11")
+        .display()
+        .to_string();
+    usage(
+        &[&millbrook, "--node", "mlb-004", "--kw", "100"],
+        "no node \"mlb-004\" in feeder hallowick-millbrook-11 (did you mean \"MLB-004\"?)",
+    );
+    usage(
+        &[&b, "--node", " 18 ", "--kw", "100"],
+        "(did you mean \"18\"?)",
+    );
     usage(&[&b, "--node", "18", "--kw", "-5"], "greater than 0");
     usage(&[&b, "--node", "18", "--kw", "lots"], "not a number");
     usage(

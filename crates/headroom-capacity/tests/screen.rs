@@ -394,7 +394,8 @@ fn bad_queue_rows_are_each_reported_with_their_line() {
                 a6,far,100,0,\n\
                 a7,far,100,0.95,maybe\n\
                 ok1,mid,10,,\n\
-                a9,src,10,,\n";
+                a9,src,10,,\n\
+                a10,FAR,10,,\n";
     let errors = parse_queue(Path::new("queue.csv"), text.as_bytes(), &[feeder], &UNITY)
         .unwrap_err()
         .errors;
@@ -413,6 +414,7 @@ fn bad_queue_rows_are_each_reported_with_their_line() {
             (Some(8), Some("absorbing"), Some("maybe")),
             (Some(9), Some("id"), Some("ok1")),
             (Some(10), Some("node"), Some("src")),
+            (Some(11), Some("node"), Some("FAR")),
         ]
     );
     let shown = errors[0].to_string();
@@ -420,6 +422,10 @@ fn bad_queue_rows_are_each_reported_with_their_line() {
         shown.starts_with("queue.csv: line 3: column node: value \"nowhere\""),
         "{shown}"
     );
+    assert!(!shown.contains("did you mean"), "{shown}");
+    // An id that differs from a node's only in letter case is pointed at.
+    let shown = errors[8].to_string();
+    assert!(shown.ends_with("(did you mean \"far\"?)"), "{shown}");
 }
 
 #[test]

@@ -89,10 +89,16 @@ fn find_node<'f>(
         .iter()
         .filter_map(|f| f.node_by_id(node).map(|bus| (*f, bus)))
         .collect();
+    let like = || {
+        candidates
+            .iter()
+            .find_map(|f| f.node_id_like(node))
+            .map_or(String::new(), |id| format!(" (did you mean {id:?}?)"))
+    };
     match found.as_slice() {
         [] => Err(Failure::Usage(match candidates.as_slice() {
-            [f] => format!("no node {node:?} in feeder {}", f.id()),
-            _ => format!("no node {node:?} in any feeder ({})", ids()),
+            [f] => format!("no node {node:?} in feeder {}{}", f.id(), like()),
+            _ => format!("no node {node:?} in any feeder ({}){}", ids(), like()),
         })),
         [(f, bus)] if *bus == BusIdx::HEAD => Err(Failure::Usage(format!(
             "node {node:?} is the head of feeder {} (the substation busbar): check a node \

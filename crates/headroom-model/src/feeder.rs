@@ -342,6 +342,20 @@ impl Feeder {
         self.by_id.get(id).copied()
     }
 
+    /// The id of a node that `id` names but for letter case (ASCII) and surrounding spaces,
+    /// for a "did you mean" in messages: `None` when `id` is a node's exact id or no id is
+    /// that close. The first such node in order wins.
+    pub fn node_id_like(&self, id: &str) -> Option<&str> {
+        if self.by_id.contains_key(id) {
+            return None;
+        }
+        let wanted = id.trim();
+        self.nodes
+            .iter()
+            .map(|node| node.id.as_str())
+            .find(|candidate| candidate.eq_ignore_ascii_case(wanted))
+    }
+
     /// Warnings found while reading (unknown columns and the like).
     pub fn warnings(&self) -> &[Diagnostic] {
         &self.warnings

@@ -220,15 +220,26 @@ pub fn parse_queue(
                 .iter()
                 .filter_map(|&f| feeders[f].node_by_id(node).map(|bus| (f, bus)))
                 .collect();
+            let like = || {
+                candidates
+                    .iter()
+                    .find_map(|&f| feeders[f].node_id_like(node))
+                    .map_or(String::new(), |id| format!(" (did you mean {id:?}?)"))
+            };
             match matches.as_slice() {
                 [] => error(
                     "node",
                     node,
                     match candidates.as_slice() {
-                        [f] => format!("no node with this id in feeder {}", feeders[*f].id()),
+                        [f] => format!(
+                            "no node with this id in feeder {}{}",
+                            feeders[*f].id(),
+                            like()
+                        ),
                         _ => format!(
-                            "no node with this id in any feeder ({})",
-                            feeder_list(feeders)
+                            "no node with this id in any feeder ({}){}",
+                            feeder_list(feeders),
+                            like()
                         ),
                     },
                 ),
