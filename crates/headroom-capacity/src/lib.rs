@@ -57,7 +57,7 @@ pub use screen::{
     RequestBreach, ScenarioCheck, Verdict, WHAT_IF_NOTE, WHAT_IF_POWER_FACTORS, WhatIfs,
     check_application, parse_queue, run_queue,
 };
-pub use search::{CapacityOptions, NodeCapacity, SearchMethod};
+pub use search::{CapacityOptions, NeighbourError, NodeCapacity, SearchMethod};
 pub use shard::{
     MAX_SHARDS, SHARD_COUNT_VARIABLE, Shard, ShardError, ShardSource, fnv1a_64,
     shard_from_environment,

@@ -284,6 +284,26 @@ impl UnitChanges {
         self.re.len()
     }
 
+    /// Sets `out` to `solution` less the linear change from an injected `current` (re, im;
+    /// pu). With `solution` the load flow's at that current, `out − base` is the linear
+    /// response's error there.
+    pub(crate) fn set_less_change(
+        &self,
+        solution: &FlowState,
+        (cr, ci): (f64, f64),
+        out: &mut FlowState,
+    ) {
+        let n = self.re.len();
+        let (re, im) = (&self.re[..n], &self.im[..n]);
+        let (sr, si) = (&solution.v_re()[..n], &solution.v_im()[..n]);
+        out.set_voltages(|i| {
+            (
+                sr[i] - cr * re[i][0] - ci * re[i][1],
+                si[i] - cr * im[i][0] - ci * im[i][1],
+            )
+        });
+    }
+
     /// Sets `work` to `base` plus the linear change from an injected `current` (re, im; pu);
     /// with `blend` = (anchor, s), to `base + s·(anchor − base)` plus that change instead.
     pub(crate) fn set_changed(

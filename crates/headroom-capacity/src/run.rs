@@ -7,7 +7,40 @@ use headroom_model::{BusIdx, Feeder, Study};
 
 use crate::criteria::{Limit, Violation};
 use crate::prepare::{BaseBranch, FeederStudy};
-use crate::search::{CapacityOptions, NodeCapacity};
+use crate::search::{CapacityOptions, NeighbourError, NodeCapacity};
+
+/// Nodes answered in turn by one worker, in the feeder's depth-first order: each node's fast
+/// search starts from the error of the linear start its predecessor measured
+/// ([`NeighbourError`]). The runs are fixed, whatever the number of threads, so that the
+/// load-flow counts are too.
+const NODES_PER_RUN: usize = 32;
+
+/// Answers the nodes `first..end` (indices of answers: node index less one) of scenario `s`
+/// in turn, calling `progress` after each.
+fn answer_run(
+    prepared: &FeederStudy<'_>,
+    s: usize,
+    (first, end): (usize, usize),
+    options: &CapacityOptions,
+    progress: &(dyn Fn(u64) + Sync),
+) -> Vec<NodeCapacity> {
+    let mut neighbour = NeighbourError::default();
+    (first..end)
+        .map(|j| {
+            let bus = BusIdx::new(j as u32 + 1);
+            let answer = prepared.node_capacity_after(s, bus, options, &mut neighbour);
+            progress(1);
+            answer
+        })
+        .collect()
+}
+
+/// The runs of [`NODES_PER_RUN`] answers that cover `n_answers`, as (first, end).
+fn runs(n_answers: usize) -> impl Iterator<Item = (usize, usize)> {
+    (0..n_answers)
+        .step_by(NODES_PER_RUN)
+        .map(move |first| (first, (first + NODES_PER_RUN).min(n_answers)))
+}
 
 /// One scenario of one feeder's map.
 #[derive(Debug, Clone)]
@@ -109,26 +142,21 @@ pub fn map_feeders<'f>(
         .map(|feeder| FeederStudy::prepare(feeder, study))
         .collect();
     let n_scenarios = study.scenarios.len();
-    let tasks: Vec<(usize, usize, BusIdx)> = prepared
+    let tasks: Vec<(usize, usize, (usize, usize))> = prepared
         .iter()
         .enumerate()
         .flat_map(|(f, p)| {
-            (0..n_scenarios).flat_map(move |s| {
-                (1..p.feeder.n_nodes()).map(move |i| (f, s, BusIdx::new(i as u32)))
-            })
+            (0..n_scenarios)
+                .flat_map(move |s| runs(p.feeder.n_nodes() - 1).map(move |run| (f, s, run)))
         })
         .collect();
-    let answers: Vec<NodeCapacity> = tasks
+    let answers: Vec<Vec<NodeCapacity>> = tasks
         .par_iter()
-        .map(|&(f, s, bus)| {
-            let answer = prepared[f].node_capacity(s, bus, options);
-            progress(1);
-            answer
-        })
+        .map(|&(f, s, run)| answer_run(&prepared[f], s, run, options, progress))
         .collect();
+    let mut answers = answers.into_iter().flatten();
 
     let mut stats = RunStats::default();
-    let mut answers = answers.into_iter();
     let mut maps = Vec::with_capacity(prepared.len());
     for p in &prepared {
         let n_answers = p.feeder.n_nodes() - 1;
@@ -153,18 +181,15 @@ pub fn map_feeder<'f>(
 ) -> (FeederMap<'f>, RunStats) {
     let prepared = FeederStudy::prepare(feeder, study);
     let n_answers = feeder.n_nodes() - 1;
-    let n_tasks = n_answers * study.scenarios.len();
-    let answers: Vec<NodeCapacity> = (0..n_tasks)
-        .into_par_iter()
-        .map(|task| {
-            // Scenario-major, then depth-first node order (the head, index 0, excluded).
-            let (s, j) = (task / n_answers, task % n_answers);
-            let answer = prepared.node_capacity(s, BusIdx::new(j as u32 + 1), options);
-            progress(1);
-            answer
-        })
+    // Scenario-major, then depth-first node order (the head, index 0, excluded).
+    let tasks: Vec<(usize, (usize, usize))> = (0..study.scenarios.len())
+        .flat_map(|s| runs(n_answers).map(move |run| (s, run)))
         .collect();
-    assemble(&prepared, answers)
+    let answers: Vec<Vec<NodeCapacity>> = tasks
+        .par_iter()
+        .map(|&(s, run)| answer_run(&prepared, s, run, options, progress))
+        .collect();
+    assemble(&prepared, answers.into_iter().flatten().collect())
 }
 
 /// One feeder's map and counts from its answers, scenario-major then node order.
