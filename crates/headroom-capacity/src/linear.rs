@@ -18,6 +18,15 @@
 //! below j down to k. Everywhere else the change follows the parent's through `A`. With every
 //! load left out (`Y = 0`), this is the superposition of ΔI through the path impedance each node
 //! shares with k.
+//!
+//! A start needs the change at every node. Off k's path it is the change at the path node m
+//! where the node's own path leaves k's, times the `A` of the nodes in between: with
+//! `C_i = A_i·A_parent·…` (the product from the head down to i, computed once per scenario),
+//! that is `C_i·C_m⁻¹` times m's change. The nodes hanging from one path node are one or two
+//! index ranges (nodes are numbered depth first), so a start is one walk down the path and, per
+//! path node, a loop over its ranges with no dependence from node to node.
+
+use std::ops::Range;
 
 use headroom_flow::{Demand, FlowState, Network};
 
@@ -76,6 +85,11 @@ pub(crate) struct LinearResponse {
     /// `G_i·Y_i`: the change of the current into node i's branch per change of its parent's
     /// voltage, when no current is injected in its subtree.
     pub(crate) branch: Vec<M2>,
+    /// `C_i = A_i·C_parent` (the identity for the head): see the module documentation. Entry
+    /// e of every node's matrix in `reach[e]`, so that a loop over nodes reads each in turn.
+    reach: [Vec<f64>; 4],
+    /// One past the last node of each node's subtree (depth-first numbering).
+    subtree_end: Vec<u32>,
 }
 
 impl LinearResponse {
@@ -133,11 +147,23 @@ impl LinearResponse {
             pass_up[i] = g;
             branches[i] = branch;
         }
+        let mut products = vec![IDENTITY; n];
+        for i in 1..n {
+            products[i] = mul(&follow[i], &products[parents[i] as usize]);
+        }
+        let reach = [0, 1, 2, 3].map(|e| products.iter().map(|c| c[e]).collect());
+        let mut subtree_end: Vec<u32> = (1..=n as u32).collect();
+        for i in (1..n).rev() {
+            let up = parents[i] as usize;
+            subtree_end[up] = subtree_end[up].max(subtree_end[i]);
+        }
         LinearResponse {
             follow,
             pass_up,
             drop,
             branch: branches,
+            reach,
+            subtree_end,
         }
     }
 
@@ -157,11 +183,29 @@ impl LinearResponse {
         for (term, &node) in terms.iter().zip(&path) {
             thevenin = add(&mul(&self.follow[node as usize], &thevenin), term);
         }
+        let end = |node: u32| self.subtree_end[node as usize];
+        let hanging = path
+            .iter()
+            .enumerate()
+            .map(|(at, &m)| match path.get(at + 1) {
+                Some(&child) => [(m, child), (end(child), end(m))],
+                None => [(m, end(m)), (end(m), end(m))],
+            })
+            .collect();
+        let unreach = path
+            .iter()
+            .map(|&m| {
+                let m = m as usize;
+                inverse(&self.reach.each_ref().map(|entry| entry[m]))
+            })
+            .collect();
         PathResponse {
             path,
             terms,
             shares,
             thevenin,
+            hanging,
+            unreach,
         }
     }
 }
@@ -179,6 +223,11 @@ pub(crate) struct PathResponse {
     shares: Vec<M2>,
     /// k's Thévenin matrix: its voltage change per injected current.
     thevenin: M2,
+    /// Per node m of the path, the nodes whose path to the head leaves k's at m (m itself
+    /// included): two index ranges, (start, end), the second empty for k.
+    hanging: Vec<[(u32, u32); 2]>,
+    /// Per node m of the path, `C_m⁻¹`.
+    unreach: Vec<M2>,
 }
 
 impl PathResponse {
@@ -219,69 +268,58 @@ impl PathResponse {
         apply(&self.thevenin, current)
     }
 
-    /// Fills `out` with the voltage change at every node per unit current injected at k, real
-    /// and imaginary: one pass down the feeder for both.
-    pub(crate) fn unit_changes(
+    /// Calls `fill(nodes, u)` for every range of nodes that leave k's path at one path node m,
+    /// with `u = C_m⁻¹·ΔV_m` for an injected `current` (re, im; pu): node i of the range changes
+    /// by `C_i·u`.
+    fn for_each_hanging(
         &self,
         linear: &LinearResponse,
-        network: &Network,
-        out: &mut UnitChanges,
+        current: (f64, f64),
+        mut fill: impl FnMut(Range<usize>, (f64, f64)),
     ) {
-        let n = network.n_nodes();
-        let parents = &network.parents()[..n];
-        let follow = &linear.follow[..n];
-        out.resize(n);
-        let UnitChanges { re, im } = out;
-        let (re, im) = (&mut re[..n], &mut im[..n]);
-        // Per node: the change per unit real current (re[0], im[0]) and per unit imaginary
-        // current (re[1], im[1]), in [f64; 2] pairs.
-        re[0] = [0.0; 2];
-        im[0] = [0.0; 2];
-        let mut on_path = self.path.iter().zip(&self.terms).skip(1).peekable();
-        let mut previous = ([0.0; 2], [0.0; 2]);
-        for i in 1..n {
-            let up = parents[i] as usize;
-            // The parent is usually the node just before: its change is still at hand.
-            let (pr, pi) = if up + 1 == i {
-                previous
-            } else {
-                (re[up], im[up])
-            };
-            let f = &follow[i];
-            let mut r = [f[0] * pr[0] + f[1] * pi[0], f[0] * pr[1] + f[1] * pi[1]];
-            let mut m = [f[2] * pr[0] + f[3] * pi[0], f[2] * pr[1] + f[3] * pi[1]];
-            if let Some((_, term)) = on_path.next_if(|(node, _)| **node as usize == i) {
-                // The term applied to (1, 0) and (0, 1): its columns.
-                r[0] += term[0];
-                m[0] += term[2];
-                r[1] += term[1];
-                m[1] += term[3];
+        // The head's change is 0: its term is never applied.
+        let mut change = (0.0, 0.0);
+        for (at, (&node, term)) in self.path.iter().zip(&self.terms).enumerate() {
+            if at > 0 {
+                let (fr, fi) = apply(&linear.follow[node as usize], change);
+                let (tr, ti) = apply(term, current);
+                change = (fr + tr, fi + ti);
             }
-            re[i] = r;
-            im[i] = m;
-            previous = (r, m);
+            let u = apply(&self.unreach[at], change);
+            for (start, end) in self.hanging[at] {
+                if start < end {
+                    fill(start as usize..end as usize, u);
+                }
+            }
         }
     }
-}
 
-/// The voltage change at every node per unit current injected at one node: per node, the real
-/// parts `re[i]` and imaginary parts `im[i]` of the change per unit real current (index 0)
-/// and per unit imaginary current (index 1).
-#[derive(Debug, Clone, Default)]
-pub(crate) struct UnitChanges {
-    re: Vec<[f64; 2]>,
-    im: Vec<[f64; 2]>,
-}
-
-impl UnitChanges {
-    fn resize(&mut self, n: usize) {
-        self.re.resize(n, [0.0; 2]);
-        self.im.resize(n, [0.0; 2]);
-    }
-
-    /// Number of nodes.
-    pub(crate) fn n_nodes(&self) -> usize {
-        self.re.len()
+    /// Sets `work` to `base` plus the linear change from an injected `current` (re, im; pu);
+    /// with `blend` = (anchor, s), to `base + s·(anchor − base)` plus that change instead.
+    pub(crate) fn set_changed(
+        &self,
+        linear: &LinearResponse,
+        base: &FlowState,
+        blend: Option<(&FlowState, f64)>,
+        current: (f64, f64),
+        work: &mut FlowState,
+    ) {
+        let (br, bi) = (base.v_re(), base.v_im());
+        // Without a blend the anchor is the base itself, with a weight of 0.
+        let (anchor, s) = blend.unwrap_or((base, 0.0));
+        let (ar, ai) = (anchor.v_re(), anchor.v_im());
+        let (vr, vi) = work.voltages_mut();
+        self.for_each_hanging(linear, current, |nodes, (ur, ui)| {
+            let n = nodes.len();
+            let [c0, c1, c2, c3] = linear.reach.each_ref().map(|e| &e[nodes.clone()][..n]);
+            let (br, bi) = (&br[nodes.clone()][..n], &bi[nodes.clone()][..n]);
+            let (ar, ai) = (&ar[nodes.clone()][..n], &ai[nodes.clone()][..n]);
+            let (vr, vi) = (&mut vr[nodes.clone()][..n], &mut vi[nodes][..n]);
+            for j in 0..n {
+                vr[j] = br[j] + s * (ar[j] - br[j]) + c0[j] * ur + c1[j] * ui;
+                vi[j] = bi[j] + s * (ai[j] - bi[j]) + c2[j] * ur + c3[j] * ui;
+            }
+        });
     }
 
     /// Sets `out` to `solution` less the linear change from an injected `current` (re, im;
@@ -289,50 +327,23 @@ impl UnitChanges {
     /// response's error there.
     pub(crate) fn set_less_change(
         &self,
+        linear: &LinearResponse,
         solution: &FlowState,
-        (cr, ci): (f64, f64),
+        current: (f64, f64),
         out: &mut FlowState,
     ) {
-        let n = self.re.len();
-        let (re, im) = (&self.re[..n], &self.im[..n]);
-        let (sr, si) = (&solution.v_re()[..n], &solution.v_im()[..n]);
-        out.set_voltages(|i| {
-            (
-                sr[i] - cr * re[i][0] - ci * re[i][1],
-                si[i] - cr * im[i][0] - ci * im[i][1],
-            )
-        });
-    }
-
-    /// Sets `work` to `base` plus the linear change from an injected `current` (re, im; pu);
-    /// with `blend` = (anchor, s), to `base + s·(anchor − base)` plus that change instead.
-    pub(crate) fn set_changed(
-        &self,
-        base: &FlowState,
-        blend: Option<(&FlowState, f64)>,
-        (cr, ci): (f64, f64),
-        work: &mut FlowState,
-    ) {
-        let n = self.re.len();
-        let (re, im) = (&self.re[..n], &self.im[..n]);
-        let (br, bi) = (&base.v_re()[..n], &base.v_im()[..n]);
-        match blend {
-            None => work.set_voltages(|i| {
-                (
-                    br[i] + cr * re[i][0] + ci * re[i][1],
-                    bi[i] + cr * im[i][0] + ci * im[i][1],
-                )
-            }),
-            Some((anchor, s)) => {
-                let (ar, ai) = (&anchor.v_re()[..n], &anchor.v_im()[..n]);
-                work.set_voltages(|i| {
-                    (
-                        br[i] + s * (ar[i] - br[i]) + cr * re[i][0] + ci * re[i][1],
-                        bi[i] + s * (ai[i] - bi[i]) + cr * im[i][0] + ci * im[i][1],
-                    )
-                })
+        let (sr, si) = (solution.v_re(), solution.v_im());
+        let (vr, vi) = out.voltages_mut();
+        self.for_each_hanging(linear, current, |nodes, (ur, ui)| {
+            let n = nodes.len();
+            let [c0, c1, c2, c3] = linear.reach.each_ref().map(|e| &e[nodes.clone()][..n]);
+            let (sr, si) = (&sr[nodes.clone()][..n], &si[nodes.clone()][..n]);
+            let (vr, vi) = (&mut vr[nodes.clone()][..n], &mut vi[nodes][..n]);
+            for j in 0..n {
+                vr[j] = sr[j] - (c0[j] * ur + c1[j] * ui);
+                vi[j] = si[j] - (c2[j] * ur + c3[j] * ui);
             }
-        }
+        });
     }
 }
 
@@ -374,9 +385,7 @@ mod tests {
                 let injection = [Injection { bus, p_pu, q_pu }];
                 solve(network, &case.demand, &injection, &mut solved, &tight).unwrap();
                 let mut started = case.base.clone();
-                let mut units = UnitChanges::default();
-                response.unit_changes(&linear, network, &mut units);
-                units.set_changed(&case.base, None, current, &mut started);
+                response.set_changed(&linear, &case.base, None, current, &mut started);
                 let predicted: Vec<(f64, f64)> = (0..feeder.n_nodes())
                     .map(|i| {
                         (

@@ -14,7 +14,7 @@ use crate::criteria::{
     first_crossing, predict_crossing_pu,
 };
 use crate::forecast::Forecast;
-use crate::linear::{MAX_ERROR_SCALE, PathResponse, UnitChanges};
+use crate::linear::{MAX_ERROR_SCALE, PathResponse};
 use crate::prepare::{FeederStudy, ScenarioCase};
 
 /// How the capacity is searched. Both return the same numbers.
@@ -169,9 +169,6 @@ struct Evaluator<'s, 'f> {
     /// The elements extrapolating predictions look at: the nodes of the plant's path, per
     /// node of it the off-path node nearest to each voltage limit, the branches of the path.
     watched: Watched,
-    /// The linear response's change per unit current at every node, built by the first start
-    /// from it.
-    units: Option<UnitChanges>,
     /// The linear start's error at the previous node's search, for this one's first start
     /// (the fast search only).
     neighbour: Option<MeasuredError>,
@@ -196,8 +193,6 @@ thread_local! {
     static SPARE_STATES: RefCell<Vec<FlowState>> = const { RefCell::new(Vec::new()) };
     /// Snapshot buffers of finished node answers, reused likewise.
     static SPARE_SNAPSHOTS: RefCell<Vec<Snapshot>> = const { RefCell::new(Vec::new()) };
-    /// Unit-change buffers of finished node answers, reused likewise.
-    static SPARE_UNITS: RefCell<Vec<UnitChanges>> = const { RefCell::new(Vec::new()) };
 }
 
 /// Spare solution buffers kept per thread.
@@ -268,9 +263,6 @@ impl Drop for Evaluator<'_, '_> {
             SPARE_SNAPSHOTS_KEPT,
             |snapshot| snapshot.v_pu.len() == n,
         );
-        keep_spares(&SPARE_UNITS, self.units.take(), 1, |units| {
-            units.n_nodes() == n
-        });
     }
 }
 
@@ -328,7 +320,6 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             solved_p_pu: [f64::NAN; SOLVED_KEPT],
             newest: 0,
             response: case.linear.path_response(path),
-            units: None,
             neighbour: None,
             forecast: None,
             watched,
@@ -700,19 +691,14 @@ impl<'s, 'f> Evaluator<'s, 'f> {
                 plant.current(vr + dr, vi + di)
             })
         };
-        // The change per unit current at every node, once per node answer.
-        let units = self.units.get_or_insert_with(|| {
-            let mut units = take_spare(&SPARE_UNITS, |_| true).unwrap_or_default();
-            self.response
-                .unit_changes(&self.case.linear, &self.study.network, &mut units);
-            units
-        });
+        let linear = &self.case.linear;
         // The state the error is taken from, its injection and the plant current whose linear
         // change it still holds (`None` for a neighbour's, which has it taken out).
         let (anchor, p_a, i_a) = match anchor {
             Anchor::Base => {
                 let current = fixed_point(&plant, (0.0, 0.0), plant.current(br[k], bi[k]));
-                units.set_changed(base, None, current, &mut self.work);
+                self.response
+                    .set_changed(linear, base, None, current, &mut self.work);
                 return;
             }
             Anchor::Solved { p_pu: p_a, slot } => {
@@ -740,15 +726,13 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         let i_p = fixed_point(&plant, (er, ei), first_guess);
         let (ar, ai) = i_a.unwrap_or((0.0, 0.0));
         let current = (i_p.0 - s * ar, i_p.1 - s * ai);
-        units.set_changed(base, Some((anchor, s)), current, &mut self.work);
+        self.response
+            .set_changed(linear, base, Some((anchor, s)), current, &mut self.work);
     }
 
     /// Measures the linear start's error at this node's newest solution into `into`, for the
     /// next node's first start.
     fn measure_error(&self, into: &mut NeighbourError) {
-        let Some(units) = &self.units else {
-            return;
-        };
         if self.solved.is_empty() {
             return;
         }
@@ -759,7 +743,8 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             Some(old) if old.offset.n_nodes() == solved.n_nodes() => old.offset,
             _ => FlowState::flat(&self.study.network),
         };
-        units.set_less_change(solved, i_a, &mut offset);
+        self.response
+            .set_less_change(&self.case.linear, solved, i_a, &mut offset);
         into.measured = Some(MeasuredError {
             scenario: self.scenario,
             q_per_p: self.q_per_p,
@@ -1741,7 +1726,6 @@ mod tests {
             let mut before = Evaluator::new(&prepared, 0, previous);
             before.solved.push(solved_at(&prepared, 0, previous, p_a));
             before.solved_p_pu[0] = p_a;
-            before.start_from_base(p_a); // builds the unit changes
             before.measure_error(&mut measured);
             let mut eval = Evaluator::new(&prepared, 0, bus);
             eval.neighbour = measured.measured.take();

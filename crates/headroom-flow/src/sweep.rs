@@ -133,6 +133,12 @@ impl FlowState {
         }
     }
 
+    /// The node voltages (real, imaginary, pu) to write a warm start into, for a caller that
+    /// fills them a stretch of nodes at a time. Currents are recomputed by the next solve.
+    pub fn voltages_mut(&mut self) -> (&mut [f64], &mut [f64]) {
+        (&mut self.v_re, &mut self.v_im)
+    }
+
     /// Number of nodes.
     pub fn n_nodes(&self) -> usize {
         self.v_re.len()
