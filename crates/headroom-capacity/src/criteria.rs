@@ -797,7 +797,7 @@ mod tests {
             .unwrap();
         let prepared = crate::prepare::FeederStudy::prepare(&feeder, &Study::default());
         let case = &prepared.cases[0];
-        let (thresholds, base) = (&case.thresholds, &case.snapshot);
+        let (thresholds, base): (_, &Snapshot) = (&case.thresholds, &case.snapshot);
         let n = base.v_pu.len();
         // What one resolution moves a voltage and a current by, pu (typical of a 1 kW step).
         let (span_v, span_i) = (1e-5, 1e-4);

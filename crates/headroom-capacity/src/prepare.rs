@@ -1,6 +1,8 @@
 //! A feeder prepared for one study: per-unit network, each scenario's demand, base-case solution
 //! and thresholds, and the path impedances the fast search predicts from.
 
+use std::sync::Arc;
+
 use headroom_flow::{
     Converged, Demand, FlowState, Network, NotConverged, Patience, Solution, SolveSettings,
     solve_patiently,
@@ -22,7 +24,7 @@ pub struct ScenarioCase {
     pub base: FlowState,
     /// How the base case solved.
     pub base_result: Result<Converged, NotConverged>,
-    pub(crate) snapshot: Snapshot,
+    pub(crate) snapshot: Arc<Snapshot>,
     pub(crate) thresholds: Thresholds,
     /// Per node: least headroom to the overvoltage threshold over its subtree, pu.
     pub(crate) subtree_ov_headroom: Vec<f64>,
@@ -215,7 +217,7 @@ impl<'f> FeederStudy<'f> {
                     demand,
                     base,
                     base_result,
-                    snapshot,
+                    snapshot: Arc::new(snapshot),
                     thresholds,
                     subtree_ov_headroom,
                     subtree_uv_headroom,

@@ -3,7 +3,7 @@
 
 use std::cell::RefCell;
 use std::collections::HashMap;
-use std::rc::Rc;
+use std::sync::Arc;
 use std::thread::LocalKey;
 
 use headroom_flow::{FlowState, Injection, NotConvergedReason, Patience, SolveSettings, solve};
@@ -180,7 +180,7 @@ struct Evaluator<'s, 'f> {
     /// Every injection the fast searches solved (in resolutions), with its outcome and what
     /// the criteria saw: each later per-criterion search starts from the tightest bracket
     /// they give it.
-    visited: Vec<(u64, Outcome, Option<Rc<Snapshot>>)>,
+    visited: Vec<(u64, Outcome, Option<Arc<Snapshot>>)>,
     /// The injection at the nose of the node's two-bus model, kW ([`two_bus_nose_p`]).
     nose_kw: f64,
     load_flows: u32,
@@ -255,7 +255,7 @@ impl Drop for Evaluator<'_, '_> {
         });
         let snapshots = std::mem::take(&mut self.visited)
             .into_iter()
-            .filter_map(|(_, _, snapshot)| Rc::try_unwrap(snapshot?).ok());
+            .filter_map(|(_, _, snapshot)| Arc::try_unwrap(snapshot?).ok());
         let seen = std::mem::take(&mut self.seen);
         keep_spares(
             &SPARE_SNAPSHOTS,
@@ -781,13 +781,13 @@ impl<'s, 'f> Evaluator<'s, 'f> {
     }
 
     /// Solves at `p_kw` and captures what the criteria see (`None`: no solution).
-    fn point(&mut self, p_kw: f64, purpose: Purpose) -> (Outcome, Option<Rc<Snapshot>>) {
+    fn point(&mut self, p_kw: f64, purpose: Purpose) -> (Outcome, Option<Arc<Snapshot>>) {
         let outcome = self.solve_at(p_kw, purpose);
         let snapshot = match outcome {
             // The judge overwrites the whole snapshot: a spare buffer takes its place.
             Outcome::Converged(_) => {
                 let fresh = spare_snapshot(&self.case.snapshot);
-                Some(Rc::new(std::mem::replace(&mut self.seen, fresh)))
+                Some(Arc::new(std::mem::replace(&mut self.seen, fresh)))
             }
             Outcome::Failed => None,
         };
@@ -948,14 +948,14 @@ impl<'s, 'f> Evaluator<'s, 'f> {
     /// solved (and the base case, a pass at 0): the highest pass below the lowest failure of
     /// `subset`, that failure when there is one, and the pass below it and the base case to
     /// extrapolate from (the limit sought may lie well beyond the passes).
-    fn detail_start(&self, subset: u8, base: &Rc<Snapshot>) -> FastStart {
+    fn detail_start(&self, subset: u8, base: &Arc<Snapshot>) -> FastStart {
         let failure = self
             .visited
             .iter()
             .filter(|(_, outcome, _)| !outcome.passes(subset))
             .min_by_key(|(steps, ..)| *steps);
         let upper = failure.map_or(u64::MAX, |(steps, ..)| *steps);
-        let mut passes: Vec<(u64, &Rc<Snapshot>)> = self
+        let mut passes: Vec<(u64, &Arc<Snapshot>)> = self
             .visited
             .iter()
             .filter(|(steps, outcome, _)| outcome.passes(subset) && *steps < upper)
@@ -972,10 +972,10 @@ impl<'s, 'f> Evaluator<'s, 'f> {
         let (lo, lo_snap) = passes[0];
         let below = passes
             .get(1)
-            .map(|(steps, snapshot)| (*steps, Rc::clone(snapshot)));
+            .map(|(steps, snapshot)| (*steps, Arc::clone(snapshot)));
         FastStart {
             lo,
-            lo_snap: Rc::clone(lo_snap),
+            lo_snap: Arc::clone(lo_snap),
             below,
             hi: failure.map(|(steps, _, snapshot)| (*steps, snapshot.clone())),
         }
@@ -1292,15 +1292,15 @@ enum Anchor {
 
 struct FastStart {
     lo: u64,
-    lo_snap: Rc<Snapshot>,
-    below: Option<(u64, Rc<Snapshot>)>,
-    hi: Option<(u64, Option<Rc<Snapshot>>)>,
+    lo_snap: Arc<Snapshot>,
+    below: Option<(u64, Arc<Snapshot>)>,
+    hi: Option<(u64, Option<Arc<Snapshot>>)>,
 }
 
 struct FastAnswer {
     lo: u64,
-    lo_snap: Rc<Snapshot>,
-    hi: Option<(u64, Option<Rc<Snapshot>>)>,
+    lo_snap: Arc<Snapshot>,
+    hi: Option<(u64, Option<Arc<Snapshot>>)>,
 }
 
 impl FeederStudy<'_> {
@@ -1321,7 +1321,7 @@ impl FeederStudy<'_> {
             Outcome::Converged(mask) => mask,
             Outcome::Failed => 0,
         };
-        (mask, snapshot.map(Rc::unwrap_or_clone), eval.load_flows)
+        (mask, snapshot.map(Arc::unwrap_or_clone), eval.load_flows)
     }
 
     /// The hosting capacity of `bus` in scenario `s` (an index into the study's scenarios).
@@ -1388,7 +1388,7 @@ impl FeederStudy<'_> {
                         && measured.q_per_p == eval.q_per_p
                         && measured.offset.n_nodes() == n
                 });
-                let base_snap = Rc::new(case.snapshot.clone());
+                let base_snap = Arc::clone(&case.snapshot);
                 let answer = eval.fast(
                     ALL,
                     FastStart {
@@ -1456,7 +1456,7 @@ impl FeederStudy<'_> {
                     (steps, None, None)
                 } else {
                     let pass_snap = if steps == 0 {
-                        Rc::new(case.snapshot.clone())
+                        Arc::clone(&case.snapshot)
                     } else {
                         eval.point(eval.kw(steps), Purpose::Crossing)
                             .1
