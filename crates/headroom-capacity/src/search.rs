@@ -1569,6 +1569,38 @@ mod tests {
         exact
     }
 
+    /// An evaluator at `bus` in scenario 0 with one injection solved, `p_pu`, and its solution.
+    fn with_one_solved<'s, 'f>(
+        prepared: &'s FeederStudy<'f>,
+        bus: BusIdx,
+        p_pu: f64,
+    ) -> (Evaluator<'s, 'f>, FlowState) {
+        let mut eval = Evaluator::new(prepared, 0, bus);
+        let solution = solved_at(prepared, 0, bus, p_pu);
+        eval.solved.push(solution.clone());
+        eval.solved_p_pu[0] = p_pu;
+        (eval, solution)
+    }
+
+    /// How far from `exact` the secant through a solved injection and the base case puts the
+    /// start at `p_pu` (plant at node `k`, unity power factor), pu.
+    fn secant_to_base_off(
+        work: &mut FlowState,
+        k: usize,
+        p_pu: f64,
+        solved: (f64, &FlowState),
+        case: &ScenarioCase,
+        exact: &FlowState,
+    ) -> f64 {
+        let plant = Plant {
+            k,
+            p_pu,
+            q_per_p: 0.0,
+        };
+        assert!(start_from_secant(work, &plant, solved, (0.0, &case.base)));
+        farthest(work, exact)
+    }
+
     /// The start from the base case moves every node by the base case's linear response to the
     /// plant's current, the loads' response included. What it leaves out is of second order in
     /// the rise (1.4e-2 to 2.2e-2 pu here, 1,500 kW): under a thousandth of the rise (measured
@@ -1606,11 +1638,8 @@ mod tests {
         let n = feeder.n_nodes();
         for k in probed_nodes(n) {
             let bus = BusIdx::new(k as u32);
-            let mut eval = Evaluator::new(&prepared, 0, bus);
             let p_a = prepared.network.kw_to_pu(1500.0);
-            let anchor = solved_at(&prepared, 0, bus, p_a);
-            eval.solved.push(anchor.clone());
-            eval.solved_p_pu[0] = p_a;
+            let (mut eval, anchor) = with_one_solved(&prepared, bus, p_a);
             eval.start_linear(p_a, Anchor::Solved { p_pu: p_a, slot: 0 });
             assert!(
                 farthest(&eval.work, &anchor) < 1e-12,
@@ -1623,18 +1652,7 @@ mod tests {
             let corrected = farthest(&eval.work, &exact);
             eval.start_from_base(p);
             let from_base = farthest(&eval.work, &exact);
-            let plant = Plant {
-                k,
-                p_pu: p,
-                q_per_p: 0.0,
-            };
-            assert!(start_from_secant(
-                &mut eval.work,
-                &plant,
-                (p_a, &anchor),
-                (0.0, &case.base)
-            ));
-            let secant = farthest(&eval.work, &exact);
+            let secant = secant_to_base_off(&mut eval.work, k, p, (p_a, &anchor), case, &exact);
             assert!(
                 corrected < 1e-5 * rise && corrected < 0.2 * from_base.min(secant),
                 "node {k}: corrected start {corrected:.2e} pu off, base's {from_base:.2e}, \
@@ -1680,28 +1698,14 @@ mod tests {
         let case = &prepared.cases[0];
         for k in probed_nodes(feeder.n_nodes()) {
             let bus = BusIdx::new(k as u32);
-            let mut eval = Evaluator::new(&prepared, 0, bus);
             let p_a = prepared.network.kw_to_pu(1500.0);
-            let anchor = solved_at(&prepared, 0, bus, p_a);
-            eval.solved.push(anchor.clone());
-            eval.solved_p_pu[0] = p_a;
+            let (mut eval, anchor) = with_one_solved(&prepared, bus, p_a);
             for p_kw in [1499.0, 1501.0] {
                 let p = prepared.network.kw_to_pu(p_kw);
                 let exact = solved_at(&prepared, 0, bus, p);
                 eval.warm_start(p);
                 let chosen = farthest(&eval.work, &exact);
-                let plant = Plant {
-                    k,
-                    p_pu: p,
-                    q_per_p: 0.0,
-                };
-                assert!(start_from_secant(
-                    &mut eval.work,
-                    &plant,
-                    (p_a, &anchor),
-                    (0.0, &case.base)
-                ));
-                let secant = farthest(&eval.work, &exact);
+                let secant = secant_to_base_off(&mut eval.work, k, p, (p_a, &anchor), case, &exact);
                 assert!(
                     chosen < 0.05 * secant,
                     "node {k} at {p_kw} kW: start {chosen:.2e} pu off, secant {secant:.2e}"
@@ -1723,10 +1727,9 @@ mod tests {
             let (previous, bus) = (BusIdx::new(k as u32 - 1), BusIdx::new(k as u32));
             let p_a = prepared.network.kw_to_pu(1500.0);
             let mut measured = NeighbourError::default();
-            let mut before = Evaluator::new(&prepared, 0, previous);
-            before.solved.push(solved_at(&prepared, 0, previous, p_a));
-            before.solved_p_pu[0] = p_a;
-            before.measure_error(&mut measured);
+            with_one_solved(&prepared, previous, p_a)
+                .0
+                .measure_error(&mut measured);
             let mut eval = Evaluator::new(&prepared, 0, bus);
             eval.neighbour = measured.measured.take();
             let p = prepared.network.kw_to_pu(1700.0);
