@@ -40,6 +40,13 @@ pub(crate) const MAX_ERROR_SCALE: f64 = 9.0;
 
 pub(crate) const IDENTITY: M2 = [1.0, 0.0, 0.0, 1.0];
 
+/// Largest condition number of a product `C_i` the starts invert: a start's change off the
+/// path then keeps about 1e-10 of relative precision. Products of the per-node matrices of a
+/// base case with a solution are near conformal (a complex factor and a small conjugate
+/// part), with condition numbers near 1 (unit test); this guards against a degenerate base
+/// case only.
+const MAX_REACH_CONDITION: f64 = 1e6;
+
 pub(crate) fn mul(a: &M2, b: &M2) -> M2 {
     [
         a[0] * b[0] + a[1] * b[2],
@@ -94,7 +101,9 @@ pub(crate) struct LinearResponse {
 
 impl LinearResponse {
     /// The response around the solved base case `base` of `demand`; where that is not finite
-    /// (a base case without a solution), the response with every load left out.
+    /// (a base case without a solution), or a product `C_i` too near singular to be inverted
+    /// without losing the start's precision, the response with every load left out (whose
+    /// products are the identity).
     pub(crate) fn new(network: &Network, demand: &Demand, base: &FlowState) -> LinearResponse {
         let with_loads = LinearResponse::build(network, Some((demand, base)));
         let finite = [
@@ -105,7 +114,14 @@ impl LinearResponse {
         ]
         .iter()
         .all(|matrices| matrices.iter().flatten().all(|v| v.is_finite()));
-        if finite {
+        // ‖C‖²_F / |det C| bounds the condition number of a 2×2 matrix from above.
+        let [c0, c1, c2, c3] = &with_loads.reach;
+        let invertible = (0..c0.len()).all(|i| {
+            let det = c0[i] * c3[i] - c1[i] * c2[i];
+            let norm2 = c0[i] * c0[i] + c1[i] * c1[i] + c2[i] * c2[i] + c3[i] * c3[i];
+            norm2.is_finite() && norm2 <= MAX_REACH_CONDITION * det.abs()
+        });
+        if finite && invertible {
             with_loads
         } else {
             LinearResponse::build(network, None)
@@ -433,6 +449,34 @@ mod tests {
                     solved.v_im()[k] - case.base.v_im()[k],
                 );
                 assert!((sr - tr).hypot(si - ti) < 1e-3 * sr.hypot(si));
+            }
+        }
+    }
+
+    /// The products `C_i` stay near conformal (a complex factor, whose ‖C‖²_F / |det C| is 2),
+    /// so the starts invert them without loss, on 11, 6.6 and 3.3 kV synthetic feeders alike
+    /// (2.0001 to 2.19 measured): far inside the guard of `MAX_REACH_CONDITION`.
+    #[test]
+    fn the_products_from_the_head_are_near_conformal() {
+        for (kv, seed) in [(11.0, 1), (6.6, 2), (3.3, 5), (3.3, 7)] {
+            let mut settings = SynthSettings::new(1000, seed);
+            settings.nominal_kv = kv;
+            let feeder = generate(&settings).to_feeder("products").unwrap();
+            let prepared = crate::prepare::FeederStudy::prepare(&feeder, &Study::default());
+            for case in &prepared.cases {
+                let [c0, c1, c2, c3] = &case.linear.reach;
+                let worst = (0..c0.len())
+                    .map(|i| {
+                        let det = c0[i] * c3[i] - c1[i] * c2[i];
+                        let norm2 = c0[i] * c0[i] + c1[i] * c1[i] + c2[i] * c2[i] + c3[i] * c3[i];
+                        norm2 / det.abs()
+                    })
+                    .fold(0.0, f64::max);
+                assert!(
+                    (2.0..2.5).contains(&worst),
+                    "{kv} kV, seed {seed}, {}: {worst}",
+                    case.scenario.name
+                );
             }
         }
     }
