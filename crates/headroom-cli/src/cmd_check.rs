@@ -89,12 +89,7 @@ fn find_node<'f>(
         .iter()
         .filter_map(|f| f.node_by_id(node).map(|bus| (*f, bus)))
         .collect();
-    let like = || {
-        candidates
-            .iter()
-            .find_map(|f| f.node_id_like(node))
-            .map_or(String::new(), |id| format!(" (did you mean {id:?}?)"))
-    };
+    let like = || Feeder::did_you_mean(candidates.iter().copied(), node);
     match found.as_slice() {
         [] => Err(Failure::Usage(match candidates.as_slice() {
             [f] => format!("no node {node:?} in feeder {}{}", f.id(), like()),

@@ -356,6 +356,16 @@ impl Feeder {
             .find(|candidate| candidate.eq_ignore_ascii_case(wanted))
     }
 
+    /// " (did you mean "x"?)" for a message about node `id`, naming the first node of
+    /// `feeders` that `id` names but for letter case and surrounding spaces
+    /// ([`Feeder::node_id_like`]); empty when there is none.
+    pub fn did_you_mean<'f>(feeders: impl IntoIterator<Item = &'f Feeder>, id: &str) -> String {
+        feeders
+            .into_iter()
+            .find_map(|feeder| feeder.node_id_like(id))
+            .map_or(String::new(), |like| format!(" (did you mean {like:?}?)"))
+    }
+
     /// Warnings found while reading (unknown columns and the like).
     pub fn warnings(&self) -> &[Diagnostic] {
         &self.warnings

@@ -220,12 +220,7 @@ pub fn parse_queue(
                 .iter()
                 .filter_map(|&f| feeders[f].node_by_id(node).map(|bus| (f, bus)))
                 .collect();
-            let like = || {
-                candidates
-                    .iter()
-                    .find_map(|&f| feeders[f].node_id_like(node))
-                    .map_or(String::new(), |id| format!(" (did you mean {id:?}?)"))
-            };
+            let like = || Feeder::did_you_mean(candidates.iter().map(|&f| &feeders[f]), node);
             match matches.as_slice() {
                 [] => error(
                     "node",
