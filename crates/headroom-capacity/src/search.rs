@@ -642,13 +642,12 @@ impl<'s, 'f> Evaluator<'s, 'f> {
             return;
         }
         let [Some(near), Some(other)] = nearest else {
-            // Nothing solved at this node yet: the previous node's error corrects the start,
-            // when there is one.
-            let anchor = match &self.neighbour {
-                Some(measured) if self.solved.is_empty() && measured.p_pu > 0.0 => {
-                    Anchor::Neighbour
-                }
-                _ => Anchor::Base,
+            // Nothing solved at this node yet (one solved injection goes to the corrected
+            // start above): the previous node's error corrects the start, when there is one.
+            let anchor = if self.neighbour.is_some() {
+                Anchor::Neighbour
+            } else {
+                Anchor::Base
             };
             self.start_linear(p_pu, anchor);
             return;
